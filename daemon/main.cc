@@ -1,0 +1,41 @@
+// nightjar: one binary, one subcommand per job. main only parses and dispatches.
+#include <cstdio>
+#include <string>
+
+#include <CLI/CLI.hpp>
+
+#include "build_info.h"
+
+namespace {
+
+int PrintVersion() {
+  std::printf("nightjar %s (%s build, %s)\n", nightjar::daemon::kVersion,
+              nightjar::daemon::kBuildType, nightjar::daemon::kCompiler);
+  return 0;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  CLI::App app{"nightjar: learns each sensor channel's normal behaviour and raises advisory "
+               "alerts when it departs from it.",
+               "nightjar"};
+  app.require_subcommand(0, 1);
+  app.set_help_all_flag("--help-all", "Show help for every subcommand");
+
+  CLI::App* version = app.add_subcommand("version", "Print the version and build facts");
+  CLI::App* help = app.add_subcommand("help", "Show this help");
+
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& error) {
+    return app.exit(error);
+  }
+
+  if (version->parsed()) return PrintVersion();
+  if (help->parsed() || app.get_subcommands().empty()) {
+    std::fputs(app.help().c_str(), stdout);
+    return app.get_subcommands().empty() ? 2 : 0;
+  }
+  return 0;
+}
