@@ -1,8 +1,7 @@
 // nightjar: one binary, one subcommand per job. main only parses and dispatches.
+#include <CLI/CLI.hpp>
 #include <cstdio>
 #include <string>
-
-#include <CLI/CLI.hpp>
 
 #include "build_info.h"
 
@@ -17,9 +16,10 @@ int PrintVersion() {
 }  // namespace
 
 int main(int argc, char** argv) {
-  CLI::App app{"nightjar: learns each sensor channel's normal behaviour and raises advisory "
-               "alerts when it departs from it.",
-               "nightjar"};
+  CLI::App app{
+      "nightjar: learns each sensor channel's normal behaviour and raises advisory "
+      "alerts when it departs from it.",
+      "nightjar"};
   app.require_subcommand(0, 1);
   app.set_help_all_flag("--help-all", "Show help for every subcommand");
 

@@ -4,23 +4,34 @@ namespace nightjar::core {
 
 const char* AlertKindName(AlertKind kind) {
   switch (kind) {
-    case AlertKind::kAnomaly: return "anomaly";
-    case AlertKind::kEvent: return "event";
-    case AlertKind::kSensor: return "sensor";
+    case AlertKind::kAnomaly:
+      return "anomaly";
+    case AlertKind::kEvent:
+      return "event";
+    case AlertKind::kSensor:
+      return "sensor";
   }
   return "unknown";
 }
 
 const char* DetectorName(Detector detector) {
   switch (detector) {
-    case Detector::kCusum: return "cusum";
-    case Detector::kEwma: return "ewma";
-    case Detector::kSpike: return "spike";
-    case Detector::kNotFinite: return "not_finite";
-    case Detector::kRange: return "range";
-    case Detector::kFlatline: return "flatline";
-    case Detector::kGap: return "gap";
-    case Detector::kTemplate: return "template";
+    case Detector::kCusum:
+      return "cusum";
+    case Detector::kEwma:
+      return "ewma";
+    case Detector::kSpike:
+      return "spike";
+    case Detector::kNotFinite:
+      return "not_finite";
+    case Detector::kRange:
+      return "range";
+    case Detector::kFlatline:
+      return "flatline";
+    case Detector::kGap:
+      return "gap";
+    case Detector::kTemplate:
+      return "template";
   }
   return "unknown";
 }
@@ -31,9 +42,12 @@ const char* AlertPhaseName(AlertPhase phase) {
 
 const char* PriorityName(Priority priority) {
   switch (priority) {
-    case Priority::kLow: return "low";
-    case Priority::kMedium: return "medium";
-    case Priority::kHigh: return "high";
+    case Priority::kLow:
+      return "low";
+    case Priority::kMedium:
+      return "medium";
+    case Priority::kHigh:
+      return "high";
   }
   return "unknown";
 }

@@ -35,18 +35,18 @@ enum class AlertPhase { kRaise, kClear };
 enum class Priority { kLow, kMedium, kHigh };
 
 struct Alert {
-  TimestampUs time = 0;         // sample time that caused the edge
-  std::string channel;          // channel name, e.g. "skid1.pump2.flow"
+  TimestampUs time = 0;  // sample time that caused the edge
+  std::string channel;   // channel name, e.g. "skid1.pump2.flow"
   AlertKind kind = AlertKind::kAnomaly;
   Detector detector = Detector::kCusum;
   AlertPhase phase = AlertPhase::kRaise;
-  double value = 0.0;           // measured value, engineering units (NaN if none)
-  double expected = 0.0;        // model's expected value, engineering units (NaN if none)
-  double z = 0.0;               // standardised residual (value - expected) / residual scale
-  double statistic = 0.0;       // detector statistic at the edge
-  double threshold = 0.0;       // the statistic's alarm threshold
+  double value = 0.0;      // measured value, engineering units (NaN if none)
+  double expected = 0.0;   // model's expected value, engineering units (NaN if none)
+  double z = 0.0;          // standardised residual (value - expected) / residual scale
+  double statistic = 0.0;  // detector statistic at the edge
+  double threshold = 0.0;  // the statistic's alarm threshold
   Priority priority = Priority::kMedium;
-  std::string message;          // one line for a human
+  std::string message;  // one line for a human
 };
 
 // Stable lower-case names used on the wire and in files.

@@ -15,13 +15,13 @@ namespace nightjar::core {
 
 enum class StatusCode {
   kOk = 0,
-  kInvalidArgument,  // caller passed something malformed
-  kNotFound,         // a named thing (channel, file) does not exist
+  kInvalidArgument,     // caller passed something malformed
+  kNotFound,            // a named thing (channel, file) does not exist
   kFailedPrecondition,  // the operation is not allowed in the present state
-  kOutOfRange,       // a value outside its allowed bounds
-  kDataLoss,         // stored data is corrupt or unreadable
-  kUnavailable,      // a peer (broker, file system) cannot be reached now
-  kInternal,         // a bug: an invariant did not hold
+  kOutOfRange,          // a value outside its allowed bounds
+  kDataLoss,            // stored data is corrupt or unreadable
+  kUnavailable,         // a peer (broker, file system) cannot be reached now
+  kInternal,            // a bug: an invariant did not hold
 };
 
 class [[nodiscard]] Status {
@@ -30,7 +30,9 @@ class [[nodiscard]] Status {
   Status(StatusCode code, std::string message) : code_(code), message_(std::move(message)) {}
 
   static Status Ok() { return {}; }
-  static Status InvalidArgument(std::string m) { return {StatusCode::kInvalidArgument, std::move(m)}; }
+  static Status InvalidArgument(std::string m) {
+    return {StatusCode::kInvalidArgument, std::move(m)};
+  }
   static Status NotFound(std::string m) { return {StatusCode::kNotFound, std::move(m)}; }
   static Status FailedPrecondition(std::string m) {
     return {StatusCode::kFailedPrecondition, std::move(m)};
@@ -53,7 +55,7 @@ class [[nodiscard]] Status {
 template <typename T>
 class [[nodiscard]] Result {
  public:
-  Result(T value) : value_(std::move(value)) {}  // NOLINT(google-explicit-constructor)
+  Result(T value) : value_(std::move(value)) {}         // NOLINT(google-explicit-constructor)
   Result(Status status) : status_(std::move(status)) {  // NOLINT(google-explicit-constructor)
     assert(!status_.ok() && "a Result built from a Status must carry an error");
   }

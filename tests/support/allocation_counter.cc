@@ -14,10 +14,14 @@ void* operator new(std::size_t size) {
   throw std::bad_alloc();
 }
 void* operator new[](std::size_t size) { return operator new(size); }
-void operator delete(void* p) noexcept { std::free(p); }  // NOLINT(cppcoreguidelines-no-malloc)
+void operator delete(void* p) noexcept { std::free(p); }    // NOLINT(cppcoreguidelines-no-malloc)
 void operator delete[](void* p) noexcept { std::free(p); }  // NOLINT(cppcoreguidelines-no-malloc)
-void operator delete(void* p, std::size_t) noexcept { std::free(p); }  // NOLINT(cppcoreguidelines-no-malloc)
-void operator delete[](void* p, std::size_t) noexcept { std::free(p); }  // NOLINT(cppcoreguidelines-no-malloc)
+void operator delete(void* p, std::size_t) noexcept {
+  std::free(p);
+}  // NOLINT(cppcoreguidelines-no-malloc)
+void operator delete[](void* p, std::size_t) noexcept {
+  std::free(p);
+}  // NOLINT(cppcoreguidelines-no-malloc)
 
 namespace nightjar::testing {
 

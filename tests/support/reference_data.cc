@@ -1,15 +1,16 @@
 #include "support/reference_data.h"
 
+#include <gtest/gtest.h>
+
 #include <cstdlib>
 #include <fstream>
-
-#include <gtest/gtest.h>
 
 namespace nightjar::testing {
 
 std::filesystem::path SharedDir() {
   // getenv is read once per call from test code only; tests are single-threaded here.
-  if (const char* env = std::getenv("NIGHTJAR_SHARED_DIR"); env != nullptr && *env != '\0') {  // NOLINT(concurrency-mt-unsafe)
+  if (const char* env = std::getenv("NIGHTJAR_SHARED_DIR");
+      env != nullptr && *env != '\0') {  // NOLINT(concurrency-mt-unsafe)
     return env;
   }
   return NIGHTJAR_DEFAULT_SHARED_DIR;

@@ -1,0 +1,395 @@
+#include "core/channel_pipeline.h"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <numbers>
+#include <string>
+#include <utility>
+
+#include "core/alert_message.h"
+
+namespace nightjar::core {
+
+namespace {
+
+constexpr double kPresent = 2.0;  // ratio fed to a sensor alarm whose condition holds
+constexpr double kAbsent = 0.0;
+constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+
+// Residuals this far out are not learnt from even before arming: a warm-up glitch must
+// not teach the model that glitches are normal (common practice: robust learning gate).
+constexpr double kLearnGateSigmas = 6.0;
+// Armed channels do not feed residuals beyond this to the model (in-control N(0,1)
+// residuals exceed it once in 16 000 samples; common practice for robust filtering).
+constexpr double kSuspectSigmas = 4.0;
+
+int PredictorInputs(const ChannelOptions& options) {
+  return options.time_of_day_features ? 4 : 2;  // increment, level (, sin, cos of time of day)
+}
+
+// Per-step damping of forecast increments while the model runs closed loop.
+constexpr double kClosedLoopDamping = 0.95;
+constexpr int kMaxClosedLoopSteps = 300;
+
+// Increments smaller than this fraction of the level scale are noise to the model.
+constexpr double kIncrementScaleFloor = 1e-3;
+
+LstmPredictorOptions PredictorOptionsFor(const ChannelOptions& options, std::uint64_t seed) {
+  LstmPredictorOptions predictor = options.predictor;
+  predictor.input_size = PredictorInputs(options);
+  predictor.seed = seed;
+  return predictor;
+}
+
+}  // namespace
+
+const char* ChannelStateName(ChannelState state) {
+  switch (state) {
+    case ChannelState::kLearning:
+      return "learning";
+    case ChannelState::kArmed:
+      return "armed";
+    case ChannelState::kInAlarm:
+      return "in_alarm";
+    case ChannelState::kStale:
+      return "stale";
+  }
+  return "unknown";
+}
+
+const char* AlarmConditionName(AlarmCondition condition) {
+  switch (condition) {
+    case AlarmCondition::kAnomaly:
+      return "anomaly";
+    case AlarmCondition::kNotFinite:
+      return "not_finite";
+    case AlarmCondition::kRange:
+      return "range";
+    case AlarmCondition::kFlatline:
+      return "flatline";
+    case AlarmCondition::kGap:
+      return "gap";
+  }
+  return "unknown";
+}
+
+bool ParseAlarmCondition(std::string_view name, AlarmCondition* condition) {
+  for (int i = 0; i < kAlarmConditionCount; ++i) {
+    const auto candidate = static_cast<AlarmCondition>(i);
+    if (name == AlarmConditionName(candidate)) {
+      *condition = candidate;
+      return true;
+    }
+  }
+  return false;
+}
+
+ChannelPipeline::ChannelPipeline(std::string name, const ChannelOptions& options,
+                                 std::uint64_t seed)
+    : name_(std::move(name)),
+      options_(options),
+      period_(SamplePeriodOptions{.learn_intervals = 64,
+                                  .configured_period_s = options.sample_period_s}),
+      health_(options.sensor),
+      scaler_(options.scaler),
+      predictor_(PredictorOptionsFor(options, seed)),
+      monitor_(options.residual),
+      alarms_{{Alarm(options.anomaly_alarm), Alarm(options.sensor_alarm),
+               Alarm(options.sensor_alarm), Alarm(options.sensor_alarm),
+               Alarm(options.sensor_alarm)}},
+      features_(static_cast<std::size_t>(PredictorOptionsFor(options, seed).input_size), 0.0f) {}
+
+const Alarm& ChannelPipeline::alarm(AlarmCondition condition) const {
+  return alarms_[static_cast<std::size_t>(condition)];
+}
+
+void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner& designer,
+                              LstmWorkspace<float>& workspace, std::vector<Alert>& out) {
+  ++counters_.samples;
+  // Timestamps must increase: the first sample of a timestamp wins, later or earlier
+  // duplicates are counted and dropped (DESIGN-NOTES §6).
+  if (has_last_time_ && time <= last_time_) {
+    ++counters_.out_of_order;
+    return;
+  }
+  const bool after_gap =
+      has_last_time_ && period_.known() &&
+      ToSeconds(time - last_time_) > options_.sensor.gap_periods * period_.period_s();
+  // A gap nobody noticed yet (no clock tick in between) is raised now, late but not lost.
+  if (after_gap) CheckGap(time, out);
+  has_last_time_ = true;
+  last_time_ = time;
+  period_.Add(time);
+
+  Context context{time, value, kNaN, kNaN};
+  if (alarm(AlarmCondition::kGap).active()) {
+    UpdateSensorAlarm(AlarmCondition::kGap, false, context, out);
+  }
+  if (after_gap) {  // the recurrent state and the last increment are meaningless now
+    predictor_.ResetSequence();
+    has_last_used_ = false;
+  }
+
+  const SensorCheck check = health_.Check(time, value);
+  UpdateSensorAlarm(AlarmCondition::kNotFinite, check.not_finite(), context, out);
+  UpdateSensorAlarm(AlarmCondition::kRange, check.out_of_range(), context, out);
+  const bool learning = !monitor_.armed();
+  if (learning && check.flatline()) {
+    // This channel holds its value in normal operation (a setpoint, a quantised or
+    // slowly sampled signal): a flatline is not a fault here.
+    flatline_check_enabled_ = false;
+  }
+  const bool flatline = flatline_check_enabled_ && check.flatline();
+  UpdateSensorAlarm(AlarmCondition::kFlatline, flatline, context, out);
+  if (check.not_finite() || check.out_of_range()) {
+    ++counters_.rejected;
+    return;
+  }
+  counters_.last_value = value;
+
+  if (!has_last_used_) {  // first sample, or first after a gap: no increment yet
+    last_used_ = value;
+    has_last_used_ = true;
+    if (!scaler_.ready()) scaler_.Learn(value);
+    ++learnt_samples_;
+    return;
+  }
+  if (!scaler_.ready()) {
+    scaler_.Learn(value);
+    increment_moments_.Add(value - last_used_);
+    last_used_ = value;
+    ++learnt_samples_;
+    return;
+  }
+
+  // The model forecasts the next increment (features[0] is the scaled increment), so
+  // "next = last" is where it starts and what it has to improve on; the level and the
+  // time of day come in as context.
+  const double predicted_increment =
+      static_cast<double>(predictor_.prediction()) * IncrementScale();
+  context.expected = last_used_ + predicted_increment;
+  const bool was_in_alarm = alarm(AlarmCondition::kAnomaly).active();
+  const bool trusted = !was_in_alarm && !flatline;
+  const double residual = (value - context.expected) / scaler_.scale();
+  const double z_now = residual / monitor_.sigma();
+  const bool gate_open =
+      trusted && (!monitor_.scale_settled() || std::abs(z_now) < kLearnGateSigmas);
+
+  const ResidualReading reading = monitor_.Observe(residual, gate_open);
+  context.z = reading.z;
+  last_reading_ = reading;
+  counters_.last_expected = context.expected;
+  counters_.last_z = reading.z;
+
+  if (monitor_.armed()) {
+    UpdateAnomalyAlarm(reading, context, out);
+  } else {
+    ++learnt_samples_;
+    if (learnt_samples_ == options_.warmup_samples / 2) monitor_.StartTailWindow();
+    if (learnt_samples_ >= options_.warmup_samples) TryArm(designer);
+  }
+
+  // A sample far off the forecast is not fed to the model: it continues its own
+  // forecast (closed loop) and learns nothing. A one-step predictor fed a faulty value
+  // follows a step within a sample or two and the evidence vanishes before the charts
+  // can add it up (DESIGN-NOTES §3); a lone glitch costs one forecast step. The forecast
+  // increment is damped in closed loop, and after kMaxClosedLoopSteps the model re-syncs
+  // with the measurements so a lasting change of level cannot hold it off for ever.
+  const bool in_alarm = alarm(AlarmCondition::kAnomaly).active();
+  const bool suspect = monitor_.armed() && std::abs(reading.z) >= kSuspectSigmas &&
+                       closed_loop_steps_ < kMaxClosedLoopSteps;
+  closed_loop_steps_ = suspect ? closed_loop_steps_ + 1 : 0;
+  const double damping = std::pow(kClosedLoopDamping, static_cast<double>(closed_loop_steps_));
+  const double used = suspect ? last_used_ + damping * predicted_increment : value;
+  const double increment = used - last_used_;
+  const bool learn = gate_open && !in_alarm && !suspect;
+  if (learn && !monitor_.armed()) {
+    scaler_.Learn(value);
+    increment_moments_.Add(increment);
+  }
+  FillFeatures(time, increment, used);
+  predictor_.Observe(features_.data(), learn, workspace);
+  last_used_ = used;
+}
+
+double ChannelPipeline::IncrementScale() const {
+  const double spread = increment_moments_.count() > 1 ? increment_moments_.stddev() : 0.0;
+  return std::max(spread, kIncrementScaleFloor * scaler_.scale());
+}
+
+void ChannelPipeline::FillFeatures(TimestampUs time, double increment, double level) {
+  features_[0] = static_cast<float>(
+      std::clamp(increment / IncrementScale(), -InputScaler::kMaxScaled, InputScaler::kMaxScaled));
+  features_[1] = static_cast<float>(scaler_.Scale(level));
+  if (features_.size() >= 4) {
+    const std::int64_t day_us = static_cast<std::int64_t>(kSecondsPerDay) * kMicrosPerSecond;
+    std::int64_t of_day = time % day_us;
+    if (of_day < 0) of_day += day_us;
+    const double angle =
+        2.0 * std::numbers::pi * static_cast<double>(of_day) / static_cast<double>(day_us);
+    features_[2] = static_cast<float>(std::sin(angle));
+    features_[3] = static_cast<float>(std::cos(angle));
+  }
+}
+
+void ChannelPipeline::TryArm(ThresholdDesigner& designer) {
+  if (arm_failed_ || !period_.known()) return;
+  Result<Thresholds> thresholds = designer.Design(options_.thresholds, period_.period_s());
+  if (!thresholds.ok()) {
+    // Options are validated when the channel is created, so this is a bug; stay
+    // learning rather than raise alarms on a broken design.
+    arm_failed_ = true;
+    return;
+  }
+  monitor_.Arm(*thresholds);
+  scaler_.Freeze();
+}
+
+void ChannelPipeline::UpdateSensorAlarm(AlarmCondition condition, bool present,
+                                        const Context& context, std::vector<Alert>& out) {
+  const AlarmEdge edge = alarm_for(condition).Update(context.time, present ? kPresent : kAbsent);
+  if (edge != AlarmEdge::kNone) EmitEdge(condition, edge, context, nullptr, out);
+}
+
+void ChannelPipeline::UpdateAnomalyAlarm(const ResidualReading& reading, const Context& context,
+                                         std::vector<Alert>& out) {
+  const AlarmEdge edge = alarm_for(AlarmCondition::kAnomaly).Update(context.time, reading.ratio);
+  if (edge == AlarmEdge::kNone) return;
+  if (edge == AlarmEdge::kClear) {
+    // Start the next episode from zero: the capped sums still hold the old fault.
+    monitor_.ResetCharts();
+  }
+  EmitEdge(AlarmCondition::kAnomaly, edge, context, &reading, out);
+}
+
+void ChannelPipeline::CheckGap(TimestampUs now, std::vector<Alert>& out) {
+  if (!has_last_time_ || !period_.known() || alarm(AlarmCondition::kGap).active()) return;
+  if (!health_.GapPresent(now, period_.period_s())) return;
+  Context context{now, kNaN, kNaN, kNaN};
+  UpdateSensorAlarm(AlarmCondition::kGap, true, context, out);
+}
+
+void ChannelPipeline::EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
+                               const ResidualReading* reading, std::vector<Alert>& out) {
+  const Alarm& source = alarm(condition);
+  Alert alert;
+  alert.time = context.time;
+  alert.channel = name_;
+  alert.phase = edge == AlarmEdge::kRaise ? AlertPhase::kRaise : AlertPhase::kClear;
+  alert.value = context.value;
+  alert.expected = context.expected;
+  alert.z = context.z;
+  const double since_s = ToSeconds(context.time - source.condition_since().value_or(context.time));
+  const double lasted_s = ToSeconds(context.time - source.raised_at().value_or(context.time));
+  const std::string& unit = options_.unit;
+
+  if (condition == AlarmCondition::kAnomaly) {
+    alert.kind = AlertKind::kAnomaly;
+    alert.priority = options_.anomaly_priority;
+    alert.detector = reading->detector;
+    alert.statistic = reading->statistic;
+    alert.threshold = reading->threshold;
+    if (alert.phase == AlertPhase::kRaise) {
+      const double run_s =
+          period_.known() ? static_cast<double>(reading->run_length) * period_.period_s() : 0.0;
+      alert.message =
+          AnomalyRaiseMessage(name_, unit, context.value, context.expected, context.z,
+                              std::max(since_s, run_s), reading->detector == Detector::kSpike);
+    } else {
+      alert.message = AnomalyClearMessage(name_, unit, context.value, context.expected, lasted_s);
+    }
+    out.push_back(std::move(alert));
+    return;
+  }
+
+  alert.kind = AlertKind::kSensor;
+  alert.priority = options_.sensor_priority;
+  alert.statistic = alert.phase == AlertPhase::kRaise ? 1.0 : 0.0;
+  alert.threshold = 1.0;
+  const bool raise = alert.phase == AlertPhase::kRaise;
+  std::string message = name_;
+  switch (condition) {
+    case AlarmCondition::kNotFinite:
+      alert.detector = Detector::kNotFinite;
+      message += raise ? " sent a value that is not a number (NaN or Inf)"
+                       : " sends numbers again: " + FormatWithUnit(context.value, unit);
+      break;
+    case AlarmCondition::kRange:
+      alert.detector = Detector::kRange;
+      message +=
+          raise ? " " + FormatWithUnit(context.value, unit) + " is outside its physical range [" +
+                      FormatValue(options_.sensor.min_value) + ", " +
+                      FormatValue(options_.sensor.max_value) + "]"
+                : " back inside its physical range at " + FormatWithUnit(context.value, unit);
+      break;
+    case AlarmCondition::kFlatline:
+      alert.detector = Detector::kFlatline;
+      alert.statistic = raise ? static_cast<double>(options_.sensor.flatline_samples) : 0.0;
+      alert.threshold = static_cast<double>(options_.sensor.flatline_samples);
+      message += raise ? " stuck at " + FormatWithUnit(context.value, unit) + " for " +
+                             std::to_string(options_.sensor.flatline_samples) +
+                             " samples (sensor or transmitter fault?)"
+                       : " moving again at " + FormatWithUnit(context.value, unit) + " after " +
+                             FormatDuration(lasted_s);
+      break;
+    case AlarmCondition::kGap:
+      alert.detector = Detector::kGap;
+      alert.statistic = ToSeconds(context.time - last_time_);
+      alert.threshold = options_.sensor.gap_periods * period_.period_s();
+      message += raise ? ": no sample for " + FormatDuration(alert.statistic) +
+                             " (expected every " + FormatDuration(period_.period_s()) + ")"
+                       : " samples again after a gap of " + FormatDuration(lasted_s);
+      break;
+    case AlarmCondition::kAnomaly:
+      break;
+  }
+  (void)since_s;
+  alert.message = std::move(message);
+  out.push_back(std::move(alert));
+}
+
+Status ChannelPipeline::Acknowledge(AlarmCondition condition, TimestampUs now) {
+  return alarm_for(condition).Acknowledge(now);
+}
+
+Status ChannelPipeline::Shelve(AlarmCondition condition, TimestampUs now, TimestampUs until) {
+  return alarm_for(condition).Shelve(now, until);
+}
+
+Status ChannelPipeline::Unshelve(AlarmCondition condition, TimestampUs now,
+                                 std::vector<Alert>& out) {
+  if (!alarm(condition).shelved()) {
+    return Status::FailedPrecondition(std::string(AlarmConditionName(condition)) + " alarm of " +
+                                      name_ + " is not shelved");
+  }
+  const AlarmEdge edge = alarm_for(condition).Unshelve(now);
+  if (edge != AlarmEdge::kNone) {
+    Context context{now, counters_.last_value, counters_.last_expected, counters_.last_z};
+    EmitEdge(condition, edge, context,
+             condition == AlarmCondition::kAnomaly ? &last_reading_ : nullptr, out);
+  }
+  return Status::Ok();
+}
+
+ChannelStatus ChannelPipeline::status() const {
+  ChannelStatus status = counters_;
+  status.sample_period_s = period_.known() ? period_.period_s() : 0.0;
+  if (alarm(AlarmCondition::kGap).active()) {
+    status.state = ChannelState::kStale;
+  } else if (!monitor_.armed()) {
+    status.state = ChannelState::kLearning;
+  } else if (alarm(AlarmCondition::kAnomaly).active()) {
+    status.state = ChannelState::kInAlarm;
+  } else {
+    status.state = ChannelState::kArmed;
+  }
+  return status;
+}
+
+std::size_t ChannelPipeline::MemoryBytes() const {
+  return sizeof(*this) + name_.capacity() + options_.unit.capacity() +
+         features_.capacity() * sizeof(float) + predictor_.MemoryBytes();
+}
+
+}  // namespace nightjar::core

@@ -1,0 +1,120 @@
+// ChannelPipeline: everything nightjar knows and does for one sensor channel.
+//
+// Per sample: order and health checks, input scaling, the LSTM one-step forecast,
+// the residual charts, and the ISA-18.2 alarms they drive. Fixed-size state, allocated
+// when the channel is created; Process() does not allocate unless it emits an alert.
+// Thread-safety: none; a channel is owned and touched by one engine worker.
+#pragma once
+
+#include <array>
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "core/alarm.h"
+#include "core/alert.h"
+#include "core/engine_options.h"
+#include "core/input_scaler.h"
+#include "core/lstm_predictor.h"
+#include "core/residual_monitor.h"
+#include "core/running_moments.h"
+#include "core/sample_period.h"
+#include "core/sensor_health.h"
+#include "core/threshold_design.h"
+
+namespace nightjar::core {
+
+// Channel states as shown to operators and on the retained state topic.
+enum class ChannelState {
+  kLearning,  // alarms disarmed while the model learns normal behaviour
+  kArmed,     // watching; no anomaly alarm active
+  kInAlarm,   // an anomaly alarm is active
+  kStale,     // no sample for longer than the gap limit
+};
+const char* ChannelStateName(ChannelState state);
+
+// The alarms one channel owns; also the name used by acknowledge/shelve commands.
+enum class AlarmCondition { kAnomaly, kNotFinite, kRange, kFlatline, kGap };
+inline constexpr int kAlarmConditionCount = 5;
+const char* AlarmConditionName(AlarmCondition condition);
+// Parses the names above; false if unknown.
+bool ParseAlarmCondition(std::string_view name, AlarmCondition* condition);
+
+struct ChannelStatus {
+  ChannelState state = ChannelState::kLearning;
+  std::int64_t samples = 0;       // samples offered, accepted or not
+  std::int64_t rejected = 0;      // not finite or out of range: not fed to the model
+  std::int64_t out_of_order = 0;  // duplicate or earlier timestamps, dropped
+  double last_value = 0.0;
+  double last_expected = 0.0;
+  double last_z = 0.0;
+  double sample_period_s = 0.0;  // 0 until known
+};
+
+class ChannelPipeline {
+ public:
+  ChannelPipeline(std::string name, const ChannelOptions& options, std::uint64_t seed);
+
+  const std::string& name() const { return name_; }
+
+  // Consumes one sample; appends any alerts (raise or clear) to `out`.
+  void Process(TimestampUs time, double value, ThresholdDesigner& designer,
+               LstmWorkspace<float>& workspace, std::vector<Alert>& out);
+
+  // Raises the gap alarm when no sample has come for too long by `now`.
+  void CheckGap(TimestampUs now, std::vector<Alert>& out);
+
+  Status Acknowledge(AlarmCondition condition, TimestampUs now);
+  Status Shelve(AlarmCondition condition, TimestampUs now, TimestampUs until);
+  Status Unshelve(AlarmCondition condition, TimestampUs now, std::vector<Alert>& out);
+  const Alarm& alarm(AlarmCondition condition) const;
+
+  ChannelStatus status() const;
+  // Heap bytes owned by this channel (model, optimiser state, rings).
+  std::size_t MemoryBytes() const;
+
+ private:
+  struct Context {
+    TimestampUs time;
+    double value;
+    double expected;
+    double z;
+  };
+
+  Alarm& alarm_for(AlarmCondition condition) {
+    return alarms_[static_cast<std::size_t>(condition)];
+  }
+  void UpdateSensorAlarm(AlarmCondition condition, bool present, const Context& context,
+                         std::vector<Alert>& out);
+  void UpdateAnomalyAlarm(const ResidualReading& reading, const Context& context,
+                          std::vector<Alert>& out);
+  void TryArm(ThresholdDesigner& designer);
+  void EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
+                const ResidualReading* reading, std::vector<Alert>& out);
+  void FillFeatures(TimestampUs time, double increment, double level);
+  double IncrementScale() const;
+
+  std::string name_;
+  ChannelOptions options_;
+  SamplePeriod period_;
+  SensorHealth health_;
+  InputScaler scaler_;
+  RunningMoments increment_moments_;  // spread of sample-to-sample increments
+  LstmPredictor predictor_;
+  ResidualMonitor monitor_;
+  std::array<Alarm, kAlarmConditionCount> alarms_;
+  std::vector<float> features_;
+
+  bool has_last_used_ = false;
+  int closed_loop_steps_ = 0;
+  double last_used_ = 0.0;  // last value the model was fed (the forecast while in alarm)
+  bool has_last_time_ = false;
+  TimestampUs last_time_ = 0;
+  bool flatline_check_enabled_ = true;
+  bool arm_failed_ = false;
+  std::int64_t learnt_samples_ = 0;  // accepted samples seen while learning
+  ResidualReading last_reading_;
+  ChannelStatus counters_;
+};
+
+}  // namespace nightjar::core

@@ -1,0 +1,121 @@
+#include "core/engine.h"
+
+#include <algorithm>
+#include <utility>
+
+namespace nightjar::core {
+
+namespace {
+// Process() sweeps all channels for gaps at most once per second of sample time.
+constexpr TimestampUs kGapSweepInterval = kMicrosPerSecond;
+}  // namespace
+
+std::uint64_t ChannelSeed(std::uint64_t engine_seed, std::string_view channel) {
+  // FNV-1a over the name, then one splitmix64 round with the engine seed mixed in.
+  std::uint64_t hash = 1469598103934665603ull;
+  for (const char c : channel) {
+    hash ^= static_cast<unsigned char>(c);
+    hash *= 1099511628211ull;
+  }
+  std::uint64_t z = hash ^ (engine_seed + 0x9e3779b97f4a7c15ull);
+  z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ull;
+  z = (z ^ (z >> 27)) * 0x94d049bb133111ebull;
+  return z ^ (z >> 31);
+}
+
+Engine::Engine(EngineOptions options, ChannelOptionsResolver resolver)
+    : options_(std::move(options)), resolver_(std::move(resolver)) {}
+
+Engine::~Engine() = default;
+
+Result<ChannelId> Engine::AddChannel(std::string_view name) {
+  return AddChannel(name, resolver_ ? resolver_(name) : options_.defaults);
+}
+
+Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions& options) {
+  if (name.empty()) return Status::InvalidArgument("channel name is empty");
+  if (ids_.find(name) != ids_.end()) {
+    return Status::InvalidArgument("channel '" + std::string(name) + "' already exists");
+  }
+  if (Status valid = ValidateChannelOptions(options); !valid.ok()) {
+    return Status::InvalidArgument("channel '" + std::string(name) + "': " + valid.message());
+  }
+  EnsureWorkspace(options);
+  const auto id = static_cast<ChannelId>(channels_.size());
+  channels_.push_back(std::make_unique<ChannelPipeline>(std::string(name), options,
+                                                        ChannelSeed(options_.seed, name)));
+  ids_.emplace(std::string(name), id);
+  return id;
+}
+
+void Engine::EnsureWorkspace(const ChannelOptions& options) {
+  const int inputs = options.time_of_day_features ? 4 : 2;
+  const int hidden = options.predictor.hidden_size;
+  const int window = options.predictor.window;
+  if (workspace_ && inputs <= workspace_inputs_ && hidden <= workspace_hidden_ &&
+      window <= workspace_window_) {
+    return;
+  }
+  workspace_inputs_ = std::max(workspace_inputs_, inputs);
+  workspace_hidden_ = std::max(workspace_hidden_, hidden);
+  workspace_window_ = std::max(workspace_window_, window);
+  workspace_ = std::make_unique<LstmWorkspace<float>>(workspace_inputs_, workspace_hidden_,
+                                                      workspace_window_);
+}
+
+std::optional<ChannelId> Engine::FindChannel(std::string_view name) const {
+  if (auto it = ids_.find(name); it != ids_.end()) return it->second;
+  return std::nullopt;
+}
+
+void Engine::Process(const Sample& sample, std::vector<Alert>& out) {
+  std::optional<ChannelId> id = FindChannel(sample.channel);
+  if (!id) {
+    Result<ChannelId> added = AddChannel(sample.channel);
+    if (!added.ok()) {
+      ++rejected_samples_;
+      return;
+    }
+    id = *added;
+  }
+  Process(*id, sample.time, sample.value, out);
+}
+
+void Engine::Process(ChannelId channel, TimestampUs time, double value, std::vector<Alert>& out) {
+  if (!clock_started_ || time >= clock_ + kGapSweepInterval) AdvanceClock(time, out);
+  channels_[channel]->Process(time, value, designer_, *workspace_, out);
+}
+
+void Engine::AdvanceClock(TimestampUs now, std::vector<Alert>& out) {
+  if (clock_started_ && now <= clock_) return;
+  clock_started_ = true;
+  clock_ = now;
+  for (auto& channel : channels_) channel->CheckGap(now, out);
+}
+
+Result<ChannelPipeline*> Engine::Find(std::string_view name) {
+  if (auto it = ids_.find(name); it != ids_.end()) return channels_[it->second].get();
+  return Status::NotFound("no channel named '" + std::string(name) + "'");
+}
+
+Status Engine::Acknowledge(std::string_view channel, AlarmCondition condition, TimestampUs now) {
+  Result<ChannelPipeline*> found = Find(channel);
+  if (!found.ok()) return found.status();
+  return (*found)->Acknowledge(condition, now);
+}
+
+Status Engine::Shelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
+                      TimestampUs until) {
+  Result<ChannelPipeline*> found = Find(channel);
+  if (!found.ok()) return found.status();
+  return (*found)->Shelve(condition, now, until);
+}
+
+Status Engine::Unshelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
+                        std::vector<Alert>& out) {
+  Result<ChannelPipeline*> found = Find(channel);
+  if (!found.ok()) return found.status();
+  return (*found)->Unshelve(condition, now, out);
+}
+
+}  // namespace nightjar::core

@@ -1,0 +1,99 @@
+// Engine: nightjar's detection core for many channels.
+//
+// Takes timestamped samples {channel, time, value} and returns the alerts they cause,
+// deterministically: the same options, seed and input give the same alerts, bit for
+// bit, on one build. It owns every channel's pipeline and one scratch workspace for
+// model training, shared by its channels. No I/O, no clock: time comes with samples.
+// Thread-safety: none. The daemon runs one Engine per worker thread, each owning a
+// shard of channels; replay runs one on one thread. Same code either way.
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <unordered_map>
+#include <vector>
+
+#include "core/alert.h"
+#include "core/channel_pipeline.h"
+#include "core/engine_options.h"
+#include "core/lstm_network.h"
+#include "core/status.h"
+#include "core/threshold_design.h"
+#include "core/time.h"
+
+namespace nightjar::core {
+
+struct Sample {
+  std::string_view channel;
+  TimestampUs time = 0;
+  double value = 0.0;
+};
+
+using ChannelId = std::uint32_t;
+
+class Engine {
+ public:
+  explicit Engine(EngineOptions options, ChannelOptionsResolver resolver = {});
+  ~Engine();
+  Engine(const Engine&) = delete;
+  Engine& operator=(const Engine&) = delete;
+
+  // Creates a channel with options from the resolver (or the defaults). Fails if the
+  // name is empty, taken, or its options are invalid (message names the key).
+  Result<ChannelId> AddChannel(std::string_view name);
+  Result<ChannelId> AddChannel(std::string_view name, const ChannelOptions& options);
+  std::optional<ChannelId> FindChannel(std::string_view name) const;
+
+  // Processes one sample, creating its channel on first sight; appends alerts to `out`.
+  // A sample for a channel that cannot be created is counted in rejected_samples().
+  void Process(const Sample& sample, std::vector<Alert>& out);
+  void Process(ChannelId channel, TimestampUs time, double value, std::vector<Alert>& out);
+
+  // Moves the engine's clock to `now` and raises gap alarms of silent channels. Called
+  // by the daemon every tick; Process() calls it when sample time moves on by a second.
+  void AdvanceClock(TimestampUs now, std::vector<Alert>& out);
+
+  // ISA-18.2 operator actions on one alarm of one channel.
+  Status Acknowledge(std::string_view channel, AlarmCondition condition, TimestampUs now);
+  Status Shelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
+                TimestampUs until);
+  Status Unshelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
+                  std::vector<Alert>& out);
+
+  std::size_t channel_count() const { return channels_.size(); }
+  const std::string& channel_name(ChannelId id) const { return channels_[id]->name(); }
+  ChannelStatus channel_status(ChannelId id) const { return channels_[id]->status(); }
+  const ChannelPipeline& channel(ChannelId id) const { return *channels_[id]; }
+  std::int64_t rejected_samples() const { return rejected_samples_; }
+
+ private:
+  struct NameHash {
+    using is_transparent = void;
+    std::size_t operator()(std::string_view name) const {
+      return std::hash<std::string_view>{}(name);
+    }
+  };
+  Result<ChannelPipeline*> Find(std::string_view name);
+  void EnsureWorkspace(const ChannelOptions& options);
+
+  EngineOptions options_;
+  ChannelOptionsResolver resolver_;
+  ThresholdDesigner designer_;
+  std::vector<std::unique_ptr<ChannelPipeline>> channels_;
+  std::unordered_map<std::string, ChannelId, NameHash, std::equal_to<>> ids_;
+  std::unique_ptr<LstmWorkspace<float>> workspace_;
+  int workspace_inputs_ = 0;
+  int workspace_hidden_ = 0;
+  int workspace_window_ = 0;
+  bool clock_started_ = false;
+  TimestampUs clock_ = 0;
+  std::int64_t rejected_samples_ = 0;
+};
+
+// Deterministic 64-bit seed for a channel from the engine seed and the channel name.
+std::uint64_t ChannelSeed(std::uint64_t engine_seed, std::string_view channel);
+
+}  // namespace nightjar::core

@@ -1,0 +1,70 @@
+#include "core/engine_options.h"
+
+#include <cmath>
+#include <string>
+
+namespace nightjar::core {
+
+namespace {
+
+Status Invalid(const std::string& key, const std::string& rule) {
+  return Status::InvalidArgument(key + ": " + rule);
+}
+
+bool InUnitInterval(double x) { return x > 0.0 && x <= 1.0; }
+
+Status ValidateTiming(const AlarmTiming& timing, const std::string& prefix) {
+  if (Status s = ValidateAlarmTiming(timing); !s.ok()) {
+    return Status::InvalidArgument(prefix + "." + s.message());
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+Status ValidateChannelOptions(const ChannelOptions& options) {
+  if (!(options.sample_period_s >= 0.0) || !std::isfinite(options.sample_period_s)) {
+    return Invalid("sample_period_s", "must be >= 0 s (0 = estimate)");
+  }
+  if (options.scaler.warmup_samples < 2) {
+    return Invalid("scaler.warmup_samples", "must be >= 2");
+  }
+  if (options.warmup_samples < options.scaler.warmup_samples) {
+    return Invalid("warmup_samples", "must be >= scaler.warmup_samples (" +
+                                         std::to_string(options.scaler.warmup_samples) + ")");
+  }
+  if (!(options.scaler.adapt_alpha >= 0.0 && options.scaler.adapt_alpha < 1.0)) {
+    return Invalid("scaler.adapt_alpha", "must be in [0, 1)");
+  }
+  if (!(options.scaler.min_scale >= 0.0)) return Invalid("scaler.min_scale", "must be >= 0");
+
+  LstmPredictorOptions predictor = options.predictor;
+  predictor.input_size = options.time_of_day_features ? 4 : 2;
+  if (Status p = LstmPredictor::Validate(predictor); !p.ok()) {
+    std::string message = p.message();
+    if (message.rfind("lstm.", 0) == 0) message.erase(0, 5);
+    return Status::InvalidArgument("predictor." + message);
+  }
+
+  const ResidualMonitorOptions& r = options.residual;
+  if (!InUnitInterval(r.scale_alpha)) return Invalid("residual.scale_alpha", "must be in (0, 1]");
+  if (!(r.scale_floor > 0.0)) return Invalid("residual.scale_floor", "must be > 0");
+  if (!(r.scale_clip >= 1.0)) return Invalid("residual.scale_clip", "must be >= 1 sigma");
+  if (!InUnitInterval(r.autocorrelation_alpha)) {
+    return Invalid("residual.autocorrelation_alpha", "must be in (0, 1]");
+  }
+  if (!(r.cusum_cap >= 1.0)) return Invalid("residual.cusum_cap", "must be >= 1 (times h)");
+
+  if (Status s = ValidateThresholdOptions(options.thresholds); !s.ok()) return s;
+
+  if (Status s = ValidateSensorHealthOptions(options.sensor); !s.ok()) {
+    return Status::InvalidArgument("sensor." + s.message());
+  }
+  if (!(options.sensor.gap_periods > 1.0)) {
+    return Invalid("sensor.gap_periods", "must be > 1 sample period");
+  }
+  if (Status t = ValidateTiming(options.anomaly_alarm, "anomaly_alarm"); !t.ok()) return t;
+  return ValidateTiming(options.sensor_alarm, "sensor_alarm");
+}
+
+}  // namespace nightjar::core

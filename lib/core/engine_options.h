@@ -1,0 +1,63 @@
+// Options for the detection engine: a plain struct per concern, every field with its
+// meaning, unit and default. The config module (lib/config) fills these from YAML;
+// tests and benchmarks fill them directly.
+// Thread-safety: plain values.
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <string>
+#include <string_view>
+
+#include "core/alarm.h"
+#include "core/alert.h"
+#include "core/input_scaler.h"
+#include "core/lstm_predictor.h"
+#include "core/residual_monitor.h"
+#include "core/sensor_health.h"
+#include "core/status.h"
+#include "core/threshold_design.h"
+
+namespace nightjar::core {
+
+struct ChannelOptions {
+  // Engineering unit shown in messages, e.g. "m3/h". Default empty.
+  std::string unit;
+  // Nominal sample period in seconds; 0 estimates it from arrival times. Default 0.
+  double sample_period_s = 0.0;
+  // Samples seen before anomaly alarms arm (state "learning"), counting the scaler's own
+  // warm-up. Default 1800 (30 min at 1 Hz).
+  int warmup_samples = 1800;
+  // Feed sin/cos of the UTC time of day to the predictor (daily load cycles). Default true.
+  bool time_of_day_features = true;
+
+  InputScalerOptions scaler;
+  // predictor.input_size is set by the engine (increment, level, and sin/cos of the time of day if
+  // enabled).
+  LstmPredictorOptions predictor;
+  ResidualMonitorOptions residual;
+  ThresholdOptions thresholds;
+  SensorHealthOptions sensor;
+
+  // Raise/clear timing of anomaly alarms (deadband is on statistic/threshold).
+  AlarmTiming anomaly_alarm{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2};
+  // Raise/clear timing of sensor alarms (not finite, range, flatline, gap).
+  AlarmTiming sensor_alarm{.on_delay_s = 0.0, .off_delay_s = 10.0, .deadband = 0.0};
+  Priority anomaly_priority = Priority::kMedium;
+  Priority sensor_priority = Priority::kLow;
+};
+
+// Checks every field; the message names the key path, e.g. "predictor.hidden_size".
+Status ValidateChannelOptions(const ChannelOptions& options);
+
+struct EngineOptions {
+  // Options for channels that the resolver (if any) does not override.
+  ChannelOptions defaults;
+  // Mixed with each channel's name to seed its model: same seed, same alerts.
+  std::uint64_t seed = 1;
+};
+
+// Picks a channel's options from its name (globs and overrides live in lib/config).
+using ChannelOptionsResolver = std::function<ChannelOptions(std::string_view channel)>;
+
+}  // namespace nightjar::core

@@ -1,0 +1,272 @@
+// End-to-end checks of the detection engine on synthetic channels: each fault type is
+// detected within a stated number of samples, clean data stays quiet, runs repeat
+// exactly, and the per-sample path does not allocate.
+#include "core/engine.h"
+
+#include <gtest/gtest.h>
+
+#include <cmath>
+#include <cstring>
+#include <limits>
+#include <numbers>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "support/allocation_counter.h"
+
+namespace nightjar::core {
+namespace {
+
+constexpr TimestampUs kStart = 1'780'000'000LL * kMicrosPerSecond;  // 2026-05-28
+constexpr double kNoise = 0.3;
+
+// A cooling-water flow: 50 m3/h with a 5-minute oscillation and sensor noise.
+class FlowSignal {
+ public:
+  explicit FlowSignal(std::uint64_t seed, double period = 300.0, double noise = kNoise)
+      : rng_(seed), noise_(0.0, noise), period_(period) {}
+  double At(int i) {
+    return 50.0 + 5.0 * std::sin(2.0 * std::numbers::pi * i / period_) + noise_(rng_);
+  }
+
+ private:
+  std::mt19937_64 rng_;
+  std::normal_distribution<double> noise_;
+  double period_;
+};
+
+EngineOptions SmallModel() {
+  EngineOptions options;
+  options.defaults.unit = "m3/h";
+  options.defaults.warmup_samples = 3000;
+  options.defaults.predictor.hidden_size = 16;
+  options.defaults.predictor.window = 16;
+  options.defaults.sensor.flatline_samples = 60;
+  options.defaults.sensor.min_value = 0.0;
+  options.defaults.sensor.max_value = 200.0;
+  return options;
+}
+
+TimestampUs At(int i) { return kStart + static_cast<TimestampUs>(i) * kMicrosPerSecond; }
+
+struct FeedResult {
+  std::vector<Alert> alerts;
+  std::vector<double> expected;  // the engine's expected value before each sample
+};
+
+// Feeds `samples` of the flow signal, with `fault(i, x)` applied, through one channel.
+template <typename Fault>
+FeedResult Feed(Engine& engine, int samples, Fault fault, std::uint64_t seed = 11) {
+  FlowSignal signal(seed);
+  FeedResult run;
+  const ChannelId id = *engine.AddChannel("skid1.flow");
+  for (int i = 0; i < samples; ++i) {
+    const double x = fault(i, signal.At(i));
+    if (std::isnan(x) && std::signbit(x)) continue;  // -NaN marks "no sample" (a gap)
+    engine.Process(id, At(i), x, run.alerts);
+    run.expected.push_back(engine.channel_status(id).last_expected);
+  }
+  return run;
+}
+
+std::string Describe(const std::vector<Alert>& alerts) {
+  std::string text;
+  for (const Alert& a : alerts) {
+    text += std::to_string((a.time - kStart) / kMicrosPerSecond) + " " + DetectorName(a.detector) +
+            " " + AlertPhaseName(a.phase) + ": " + a.message + "\n";
+  }
+  return text;
+}
+
+std::vector<Alert> Raises(const std::vector<Alert>& alerts, AlertKind kind) {
+  std::vector<Alert> out;
+  for (const Alert& a : alerts) {
+    if (a.kind == kind && a.phase == AlertPhase::kRaise) out.push_back(a);
+  }
+  return out;
+}
+
+constexpr int kFaultAt = 6000;
+
+TEST(EngineTest, QuietOnCleanData) {
+  Engine engine(SmallModel());
+  FeedResult run = Feed(engine, 12000, [](int, double x) { return x; });
+  // Budget 0.5 false alerts/day; 9000 armed samples are 0.1 day: expect ~0.05, allow 1.
+  EXPECT_LE(Raises(run.alerts, AlertKind::kAnomaly).size(), 1u);
+  EXPECT_TRUE(Raises(run.alerts, AlertKind::kSensor).empty());
+  EXPECT_EQ(engine.channel_status(0).state, ChannelState::kArmed);
+}
+
+std::vector<Alert> RaisesFrom(const std::vector<Alert>& alerts, TimestampUs from) {
+  std::vector<Alert> out;
+  for (const Alert& a : alerts) {
+    if (a.kind == AlertKind::kAnomaly && a.phase == AlertPhase::kRaise && a.time >= from) {
+      out.push_back(a);
+    }
+  }
+  return out;
+}
+
+TEST(EngineTest, DetectsStepWithinTenSamples) {
+  Engine engine(SmallModel());
+  // +2 m3/h (6.7 noise sigmas) from kFaultAt for 300 s, then back.
+  FeedResult run = Feed(engine, kFaultAt + 900, [](int i, double x) {
+    return (i >= kFaultAt && i < kFaultAt + 300) ? x + 2.0 : x;
+  });
+  SCOPED_TRACE(Describe(run.alerts));
+  std::vector<Alert> raises = RaisesFrom(run.alerts, At(kFaultAt));
+  ASSERT_FALSE(raises.empty());
+  EXPECT_LE(raises[0].time, At(kFaultAt + 10));
+  EXPECT_GT(raises[0].z, 0.0);
+  EXPECT_NE(raises[0].message.find("above the expected"), std::string::npos);
+  EXPECT_EQ(engine.channel_status(0).state, ChannelState::kArmed) << "cleared after the fault";
+}
+
+TEST(EngineTest, DetectsSpikeAtOnce) {
+  Engine engine(SmallModel());
+  FeedResult run = Feed(engine, kFaultAt + 300,
+                        [](int i, double x) { return i == kFaultAt ? x + 10 * kNoise * 2 : x; });
+  std::vector<Alert> raises = RaisesFrom(run.alerts, At(kFaultAt));
+  ASSERT_EQ(raises.size(), 1u) << Describe(run.alerts);
+  EXPECT_EQ(raises[0].time, At(kFaultAt));
+  EXPECT_EQ(raises[0].detector, Detector::kSpike);
+}
+
+TEST(EngineTest, DetectsFlatlineWithinItsWindow) {
+  Engine engine(SmallModel());
+  double held = 0.0;
+  FeedResult run = Feed(engine, kFaultAt + 300, [&held](int i, double x) {
+    if (i == kFaultAt) held = x;
+    return i >= kFaultAt ? held : x;
+  });
+  std::vector<Alert> raises = Raises(run.alerts, AlertKind::kSensor);
+  ASSERT_EQ(raises.size(), 1u);
+  EXPECT_EQ(raises[0].detector, Detector::kFlatline);
+  EXPECT_LE(raises[0].time, At(kFaultAt + 60));
+}
+
+TEST(EngineTest, DetectsGapWhenClockMovesOn) {
+  Engine engine(SmallModel());
+  std::vector<Alert> alerts;
+  FlowSignal signal(3);
+  const ChannelId id = *engine.AddChannel("skid1.flow");
+  for (int i = 0; i < 200; ++i) engine.Process(id, At(i), signal.At(i), alerts);
+  engine.AdvanceClock(At(205), alerts);
+  EXPECT_TRUE(alerts.empty()) << "6 s of silence is within 10 periods";
+  engine.AdvanceClock(At(211), alerts);
+  ASSERT_EQ(alerts.size(), 1u);
+  EXPECT_EQ(alerts[0].detector, Detector::kGap);
+  EXPECT_EQ(alerts[0].phase, AlertPhase::kRaise);
+  EXPECT_EQ(engine.channel_status(id).state, ChannelState::kStale);
+  // Samples resume: the gap alarm clears after the sensor off-delay (10 s).
+  for (int i = 300; i < 320; ++i) engine.Process(id, At(i), signal.At(i), alerts);
+  ASSERT_EQ(alerts.size(), 2u);
+  EXPECT_EQ(alerts[1].detector, Detector::kGap);
+  EXPECT_EQ(alerts[1].phase, AlertPhase::kClear);
+}
+
+TEST(EngineTest, BadValuesRaiseSensorAlarmsAndAreNotLearnt) {
+  Engine engine(SmallModel());
+  FeedResult run = Feed(engine, 400, [](int i, double x) {
+    if (i == 100) return std::numeric_limits<double>::quiet_NaN();
+    if (i == 200) return 1e6;  // outside [0, 200]
+    return x;
+  });
+  std::vector<Alert> raises = Raises(run.alerts, AlertKind::kSensor);
+  ASSERT_EQ(raises.size(), 2u);
+  EXPECT_EQ(raises[0].detector, Detector::kNotFinite);
+  EXPECT_EQ(raises[1].detector, Detector::kRange);
+  EXPECT_EQ(engine.channel_status(0).rejected, 2);
+}
+
+TEST(EngineTest, OutOfOrderSamplesAreCountedAndDropped) {
+  Engine engine(SmallModel());
+  std::vector<Alert> alerts;
+  const ChannelId id = *engine.AddChannel("skid1.flow");
+  engine.Process(id, At(10), 50.0, alerts);
+  engine.Process(id, At(10), 51.0, alerts);  // duplicate timestamp
+  engine.Process(id, At(9), 52.0, alerts);   // backwards
+  EXPECT_EQ(engine.channel_status(id).out_of_order, 2);
+  EXPECT_DOUBLE_EQ(engine.channel_status(id).last_value, 50.0);
+}
+
+TEST(EngineTest, SameInputSameAlerts) {
+  auto once = [] {
+    Engine engine(SmallModel());
+    return Feed(engine, kFaultAt + 900, [](int i, double x) {
+      return (i >= kFaultAt && i < kFaultAt + 300) ? x + 2.0 : x;
+    });
+  };
+  FeedResult a = once();
+  FeedResult b = once();
+  ASSERT_EQ(a.alerts.size(), b.alerts.size());
+  ASSERT_FALSE(a.alerts.empty());
+  for (std::size_t i = 0; i < a.alerts.size(); ++i) {
+    EXPECT_EQ(a.alerts[i].time, b.alerts[i].time);
+    EXPECT_EQ(a.alerts[i].message, b.alerts[i].message);
+    // Bit-for-bit: compare the doubles exactly.
+    EXPECT_EQ(std::memcmp(&a.alerts[i].expected, &b.alerts[i].expected, sizeof(double)), 0);
+    EXPECT_EQ(std::memcmp(&a.alerts[i].statistic, &b.alerts[i].statistic, sizeof(double)), 0);
+  }
+  EXPECT_EQ(a.expected, b.expected);
+}
+
+TEST(EngineTest, PerSampleStepDoesNotAllocate) {
+  Engine engine(SmallModel());
+  FlowSignal signal(5);
+  std::vector<Alert> alerts;
+  alerts.reserve(64);
+  const ChannelId id = *engine.AddChannel("skid1.flow");
+  for (int i = 0; i < 4000; ++i) engine.Process(id, At(i), signal.At(i), alerts);
+  ASSERT_EQ(engine.channel_status(id).state, ChannelState::kArmed);
+  const std::size_t alerts_before = alerts.size();
+  std::vector<double> values(2000);
+  for (int i = 0; i < 2000; ++i) values[static_cast<std::size_t>(i)] = signal.At(4000 + i);
+  {
+    testing::AllocationCounter counter;
+    Eigen::internal::set_is_malloc_allowed(false);
+    for (int i = 0; i < 2000; ++i) {
+      engine.Process(id, At(4000 + i), values[static_cast<std::size_t>(i)], alerts);
+    }
+    Eigen::internal::set_is_malloc_allowed(true);
+    EXPECT_EQ(counter.count(), 0u);
+  }
+  EXPECT_EQ(alerts.size(), alerts_before) << "an alert may allocate; this run must have none";
+}
+
+TEST(EngineTest, RejectsInvalidOptionsNamingTheKey) {
+  EngineOptions options;
+  options.defaults.predictor.hidden_size = 0;
+  Engine engine(options);
+  Result<ChannelId> id = engine.AddChannel("skid1.flow");
+  ASSERT_FALSE(id.ok());
+  EXPECT_NE(id.status().message().find("predictor.hidden_size"), std::string::npos);
+  std::vector<Alert> alerts;
+  engine.Process(Sample{"skid1.flow", At(0), 1.0}, alerts);
+  EXPECT_EQ(engine.rejected_samples(), 1);
+  EXPECT_EQ(engine.channel_count(), 0u);
+}
+
+TEST(EngineTest, AcknowledgeAndShelveThroughTheEngine) {
+  Engine engine(SmallModel());
+  FeedResult run =
+      Feed(engine, kFaultAt + 100, [](int i, double x) { return i >= kFaultAt ? x + 3.0 : x; });
+  ASSERT_EQ(engine.channel_status(0).state, ChannelState::kInAlarm);
+  const TimestampUs now = At(kFaultAt + 100);
+  EXPECT_TRUE(engine.Acknowledge("skid1.flow", AlarmCondition::kAnomaly, now).ok());
+  EXPECT_EQ(engine.channel(0).alarm(AlarmCondition::kAnomaly).state(), AlarmState::kAcknowledged);
+  EXPECT_FALSE(engine.Acknowledge("skid1.flow", AlarmCondition::kAnomaly, now).ok());
+  EXPECT_EQ(engine.Acknowledge("no.such", AlarmCondition::kAnomaly, now).code(),
+            StatusCode::kNotFound);
+  EXPECT_TRUE(
+      engine.Shelve("skid1.flow", AlarmCondition::kAnomaly, now, now + 60 * kMicrosPerSecond).ok());
+  EXPECT_EQ(engine.channel(0).alarm(AlarmCondition::kAnomaly).state(), AlarmState::kShelved);
+  std::vector<Alert> alerts;
+  EXPECT_TRUE(engine.Unshelve("skid1.flow", AlarmCondition::kAnomaly, now, alerts).ok());
+  ASSERT_EQ(alerts.size(), 1u) << "still active when unshelved: annunciated again";
+  EXPECT_EQ(alerts[0].phase, AlertPhase::kRaise);
+}
+
+}  // namespace
+}  // namespace nightjar::core
