@@ -14,7 +14,7 @@
 //                     alarms are a known hazard (from memory)
 //   TR18.2.5/EEMUA    ISA-TR18.2.5 / EEMUA 191 recommendations for on/off delays and
 //                     deadbands, chattering = >= 3 activations in 1 min
-//                     (/work/shared/references/references.md §7.2, from memory)
+//                     (../shared/references/references.md §7.2, from memory)
 //   common practice   no standard behind it; our documented contract
 
 namespace nightjar::core {
