@@ -59,15 +59,30 @@ struct Kernels {
   static Packet Set(Scalar x) { return Eigen::internal::pset1<Packet>(x); }
 
   // gates[r0 .. r0 + kBlocks*kSize) = bias + W x, W column-major with `rows` rows.
+  // gates[r0 .. r0 + kBlocks*kSize) = bias + W x, W column-major with `rows` rows;
+  // columns last to first if `reverse`.
   template <int kBlocks>
   static void GemvBlock(const Scalar* w, Index rows, Index cols, const Scalar* bias,
-                        const Scalar* x, Index r0, Packet* acc) {
+                        const Scalar* x, Index r0, bool reverse, Packet* acc) {
     using Eigen::internal::pmadd;
     for (int b = 0; b < kBlocks; ++b) acc[b] = Load(bias + r0 + b * kSize);
-    const Scalar* col = w + r0;
-    for (Index j = 0; j < cols; ++j, col += rows) {
+    const Index first = reverse ? cols - 1 : 0, stride = reverse ? -1 : 1;
+    for (Index n = 0, j = first; n < cols; ++n, j += stride) {
       const Packet xj = Set(x[j]);
+      const Scalar* col = w + j * rows + r0;
       for (int b = 0; b < kBlocks; ++b) acc[b] = pmadd(Load(col + b * kSize), xj, acc[b]);
+    }
+  }
+
+  template <int kBlocks>
+  static void GatesBlock(const Scalar* w, Index rows, Index cols, const Scalar* bias,
+                         const Scalar* x, Index hidden, Index r0, bool reverse, Scalar* gates) {
+    // NOLINTNEXTLINE(modernize-avoid-c-arrays): std::array drops vector attributes
+    Packet acc[kBlocks];
+    GemvBlock<kBlocks>(w, rows, cols, bias, x, r0, reverse, acc);
+    for (int b = 0; b < kBlocks; ++b) {
+      const Index r = r0 + b * kSize;
+      Store(gates + r, Activate(acc[b], r / hidden == 2));
     }
   }
 
@@ -83,34 +98,39 @@ struct Kernels {
 
   // One cell step. xh = [x; h] (cols entries), c_prev (H); writes the activated gates
   // (4H), c_out, tanh_c_out (may be null) and h_out (H). c_out may alias c_prev.
+  // `reverse` walks W from its end: alternating it between consecutive steps re-uses
+  // the part of W still in L1 when W is larger than L1 (H = 64: 68 KB).
   static void ForwardStep(const Scalar* w, const Scalar* bias, Index hidden, Index cols,
-                          const Scalar* xh, const Scalar* c_prev, Scalar* gates, Scalar* c_out,
-                          Scalar* tanh_c_out, Scalar* h_out) {
+                          const Scalar* xh, const Scalar* c_prev, bool reverse, Scalar* gates,
+                          Scalar* c_out, Scalar* tanh_c_out, Scalar* h_out) {
     using Eigen::internal::padd;
     using Eigen::internal::pmul;
     using Eigen::internal::ptanh;
     const Index rows = 4 * hidden;
-    constexpr int kMaxBlocks = 8;  // 8 accumulators cover FMA latency x issue width
-    // NOLINTNEXTLINE(modernize-avoid-c-arrays): std::array drops vector attributes
-    Packet acc[kMaxBlocks];
-    Index r0 = 0;
-    for (; r0 + kMaxBlocks * kSize <= rows; r0 += kMaxBlocks * kSize) {
-      GemvBlock<kMaxBlocks>(w, rows, cols, bias, xh, r0, acc);
-      for (int b = 0; b < kMaxBlocks; ++b) {
-        const Index r = r0 + b * kSize;
-        Store(gates + r, Activate(acc[b], r / hidden == 2));
+    // Row blocks of 8 packets (8 accumulators cover FMA latency x issue width), then 4,
+    // then single packets.
+    const Index n8 = rows / (8 * kSize), n4 = (rows - n8 * 8 * kSize) / (4 * kSize);
+    const Index tail = n8 * 8 * kSize + n4 * 4 * kSize;
+    if (!reverse) {
+      for (Index b = 0; b < n8; ++b) {
+        GatesBlock<8>(w, rows, cols, bias, xh, hidden, b * 8 * kSize, false, gates);
       }
-    }
-    for (; r0 + 4 * kSize <= rows; r0 += 4 * kSize) {
-      GemvBlock<4>(w, rows, cols, bias, xh, r0, acc);
-      for (int b = 0; b < 4; ++b) {
-        const Index r = r0 + b * kSize;
-        Store(gates + r, Activate(acc[b], r / hidden == 2));
+      for (Index b = 0; b < n4; ++b) {
+        GatesBlock<4>(w, rows, cols, bias, xh, hidden, (n8 * 8 + b * 4) * kSize, false, gates);
       }
-    }
-    for (; r0 < rows; r0 += kSize) {
-      GemvBlock<1>(w, rows, cols, bias, xh, r0, acc);
-      Store(gates + r0, Activate(acc[0], r0 / hidden == 2));
+      for (Index r0 = tail; r0 < rows; r0 += kSize) {
+        GatesBlock<1>(w, rows, cols, bias, xh, hidden, r0, false, gates);
+      }
+    } else {
+      for (Index r0 = rows - kSize; r0 >= tail; r0 -= kSize) {
+        GatesBlock<1>(w, rows, cols, bias, xh, hidden, r0, true, gates);
+      }
+      for (Index b = n4 - 1; b >= 0; --b) {
+        GatesBlock<4>(w, rows, cols, bias, xh, hidden, (n8 * 8 + b * 4) * kSize, true, gates);
+      }
+      for (Index b = n8 - 1; b >= 0; --b) {
+        GatesBlock<8>(w, rows, cols, bias, xh, hidden, b * 8 * kSize, true, gates);
+      }
     }
     for (Index u = 0; u < hidden; u += kSize) {
       const Packet i = Load(gates + u), f = Load(gates + hidden + u);
@@ -198,15 +218,24 @@ struct Kernels {
     for (Index r0 = 0; r0 < rows; r0 += 4 * kSize) {
       Index j = 0;
       for (; j + 4 <= cols; j += 4) OuterBlock<4, 4>(a, rows, b, ldb, k, r0, j, out);
-      for (; j < cols; ++j) OuterBlock<4, 1>(a, rows, b, ldb, k, r0, j, out);
+      // The 1-3 columns left in one block, so its accumulator chains still overlap.
+      if (cols - j == 3) OuterBlock<4, 3>(a, rows, b, ldb, k, r0, j, out);
+      if (cols - j == 2) OuterBlock<4, 2>(a, rows, b, ldb, k, r0, j, out);
+      if (cols - j == 1) OuterBlock<4, 1>(a, rows, b, ldb, k, r0, j, out);
     }
   }
 
-  static void TransposedGemv(const Scalar* w, Index rows, Index cols, const Scalar* d,
+  // Groups last to first if `reverse` (see ForwardStep).
+  static void TransposedGemv(const Scalar* w, Index rows, Index cols, const Scalar* d, bool reverse,
                              Scalar* out) {
-    Index j = 0;
-    for (; j + 8 <= cols; j += 8) DotGroup<8>(w, rows, d, j, out);
-    for (; j < cols; ++j) DotGroup<1>(w, rows, d, j, out);
+    const Index groups = cols / 8;
+    if (!reverse) {
+      for (Index k = 0; k < groups; ++k) DotGroup<8>(w, rows, d, 8 * k, out);
+      for (Index j = 8 * groups; j < cols; ++j) DotGroup<1>(w, rows, d, j, out);
+    } else {
+      for (Index j = cols - 1; j >= 8 * groups; --j) DotGroup<1>(w, rows, d, j, out);
+      for (Index k = groups - 1; k >= 0; --k) DotGroup<8>(w, rows, d, 8 * k, out);
+    }
   }
 };
 
@@ -293,7 +322,8 @@ void LstmNetwork<Scalar>::Step(const Eigen::Ref<const Vector>& input, Eigen::Ref
   if constexpr (Kernels<Scalar>::kAvailable) {
     if (Kernels<Scalar>::Usable(hs)) {
       Kernels<Scalar>::ForwardStep(p.w_stacked().data(), p.bias().data(), hs, in + hs, xh.data(),
-                                   c.data(), ws.step_gates_.data(), c.data(), nullptr, h.data());
+                                   c.data(), /*reverse=*/false, ws.step_gates_.data(), c.data(),
+                                   nullptr, h.data());
       return;
     }
   }
@@ -359,7 +389,8 @@ Scalar LstmNetwork<Scalar>::LossAndGradient(const Eigen::Ref<const Matrix>& inpu
   if constexpr (Kernels<Scalar>::kAvailable) {
     for (Index t = 0; t < steps && fast; ++t) {
       Kernels<Scalar>::ForwardStep(w_stacked.data(), bias.data(), hs, rows, xh.col(t).data(),
-                                   cell.col(t).data(), gates.col(t).data(), cell.col(t + 1).data(),
+                                   cell.col(t).data(), /*reverse=*/(t & 1) != 0,
+                                   gates.col(t).data(), cell.col(t + 1).data(),
                                    tanh_c.col(t).data(), xh.col(t + 1).data() + in);
     }
   }
@@ -395,7 +426,8 @@ Scalar LstmNetwork<Scalar>::LossAndGradient(const Eigen::Ref<const Matrix>& inpu
       Kernels<Scalar>::BackwardGates(hs, gates.col(t).data(), tanh_c.col(t).data(),
                                      cell.col(t).data(), w_head.data(), dy[t], dh.data(), dc.data(),
                                      dgates.col(t).data());
-      Kernels<Scalar>::TransposedGemv(w_hidden.data(), gs, hs, dgates.col(t).data(), dh.data());
+      Kernels<Scalar>::TransposedGemv(w_hidden.data(), gs, hs, dgates.col(t).data(),
+                                      /*reverse=*/((steps - t) & 1) != 0, dh.data());
     }
   }
   for (Index t = steps - 1; t >= 0 && !fast; --t) {

@@ -94,7 +94,11 @@ Index LstmPredictor::Slot(Index back) const {
 
 void LstmPredictor::Observe(const float* features, bool learn, LstmWorkspace<float>& ws) {
   const Index in = options_.input_size, hs = options_.hidden_size;
-  assert(ws.Fits(in, hs, options_.window));
+  if (!ws.Fits(in, hs, options_.window)) {
+    // A caller bug; in release builds dropping the sample beats writing out of bounds.
+    assert(false && "LstmPredictor::Observe: workspace too small");
+    return;
+  }
   const Eigen::Map<const Eigen::VectorXf> x(features, in);
   if (!x.allFinite()) {
     pairs_ = 0;

@@ -17,6 +17,10 @@
 namespace nightjar::core {
 namespace {
 
+// Allocation checks: with set_is_malloc_allowed(false) Eigen aborts on any heap
+// allocation, but only where eigen_assert is live (builds without NDEBUG, e.g. the
+// sanitizer job); AllocationCounter sees operator new in every build, not Eigen's malloc.
+
 using Eigen::Index;
 using nightjar::testing::LoadReference;
 using nightjar::testing::ToVector;
@@ -415,7 +419,7 @@ TEST(LstmNetworkTest, StepAndGradientDoNotAllocate) {
   const Eigen::VectorXf targets = Eigen::VectorXf::Constant(32, 0.1f);
   Eigen::VectorXf h = Eigen::VectorXf::Zero(32), c = Eigen::VectorXf::Zero(32);
   auto gradient = ws.gradient(net.parameter_count());
-  Eigen::internal::set_is_malloc_allowed(false);  // Eigen asserts on any heap use
+  Eigen::internal::set_is_malloc_allowed(false);  // see "Allocation checks" above
   net.Step(inputs.col(0), h, c, ws);
   const float loss = net.LossAndGradient(inputs, targets, h, c, ws, gradient);
   ClipGradientNorm(gradient, 1.0f);

@@ -20,6 +20,10 @@
 namespace nightjar::core {
 namespace {
 
+// Allocation checks: with set_is_malloc_allowed(false) Eigen aborts on any heap
+// allocation, but only where eigen_assert is live (builds without NDEBUG, e.g. the
+// sanitizer job); AllocationCounter sees operator new in every build, not Eigen's malloc.
+
 using Eigen::Index;
 
 constexpr double kPi = 3.14159265358979323846;
@@ -224,7 +228,7 @@ TEST(LstmPredictorTest, ObserveDoesNotAllocate) {
   std::size_t allocations = 0;
   {
     nightjar::testing::AllocationCounter counter;
-    Eigen::internal::set_is_malloc_allowed(false);  // Eigen asserts on any heap use
+    Eigen::internal::set_is_malloc_allowed(false);  // see "Allocation checks" above
     for (int k = 40; k < 140; ++k) {
       std::array<float, 3> features = NoisySine(k, 0.0);
       if (k == 90) features[0] = std::numeric_limits<float>::infinity();
@@ -236,6 +240,42 @@ TEST(LstmPredictorTest, ObserveDoesNotAllocate) {
   }
   EXPECT_EQ(allocations, 0u);
   EXPECT_GT(predictor.train_steps(), 50);
+}
+
+// Other sizes, both code paths (H a multiple of the packet size or not) and the largest
+// hidden_size * window that Validate accepts, where Eigen's product buffers are largest.
+TEST(LstmPredictorTest, ObserveDoesNotAllocateAtOtherSizes) {
+  struct Size {
+    int input, hidden, window;
+  };
+  for (const Size size : {Size{1, 7, 3}, Size{5, 20, 64}, Size{2, 100, 80}, Size{3, 128, 64}}) {
+    LstmPredictorOptions options;
+    options.input_size = size.input;
+    options.hidden_size = size.hidden;
+    options.window = size.window;
+    ASSERT_TRUE(LstmPredictor::Validate(options).ok());
+    LstmPredictor predictor(options);
+    LstmWorkspace<float> ws = LstmPredictor::MakeWorkspace(options);
+    std::vector<float> features(static_cast<std::size_t>(size.input), 0.25f);
+    const int warm_up = std::min(size.window + 1, 12);
+    for (int k = 0; k < warm_up; ++k) {
+      features[0] = static_cast<float>(std::sin(0.2 * k));
+      predictor.Observe(features.data(), true, ws);
+    }
+    std::size_t allocations = 0;
+    {
+      nightjar::testing::AllocationCounter counter;
+      Eigen::internal::set_is_malloc_allowed(false);
+      for (int k = warm_up; k < warm_up + 3; ++k) {
+        features[0] = static_cast<float>(std::sin(0.2 * k));
+        predictor.Observe(features.data(), true, ws);
+      }
+      Eigen::internal::set_is_malloc_allowed(true);
+      allocations = counter.count();
+    }
+    EXPECT_EQ(allocations, 0u) << "hidden " << size.hidden;
+    EXPECT_TRUE(std::isfinite(predictor.prediction()));
+  }
 }
 
 TEST(LstmPredictorTest, PredictionStartsAtZeroAndResetSequenceClearsState) {
