@@ -58,28 +58,31 @@ struct Kernels {
   static void Store(Scalar* p, const Packet& x) { Eigen::internal::pstoreu(p, x); }
   static Packet Set(Scalar x) { return Eigen::internal::pset1<Packet>(x); }
 
-  // gates[r0 .. r0 + kBlocks*kSize) = bias + W x, W column-major with `rows` rows.
-  // gates[r0 .. r0 + kBlocks*kSize) = bias + W x, W column-major with `rows` rows;
-  // columns last to first if `reverse`.
-  template <int kBlocks>
-  static void GemvBlock(const Scalar* w, Index rows, Index cols, const Scalar* bias,
-                        const Scalar* x, Index r0, bool reverse, Packet* acc) {
+  // acc[0 .. kBlocks) = rows r0 .. r0 + kBlocks*kSize of bias + W x, W column-major with
+  // `rows` rows; columns last to first if kReverse.
+  template <int kBlocks, bool kReverse>
+  static EIGEN_ALWAYS_INLINE void GemvBlock(const Scalar* w, Index rows, Index cols,
+                                            const Scalar* bias, const Scalar* x, Index r0,
+                                            Packet* acc) {
     using Eigen::internal::pmadd;
     for (int b = 0; b < kBlocks; ++b) acc[b] = Load(bias + r0 + b * kSize);
-    const Index first = reverse ? cols - 1 : 0, stride = reverse ? -1 : 1;
-    for (Index n = 0, j = first; n < cols; ++n, j += stride) {
-      const Packet xj = Set(x[j]);
-      const Scalar* col = w + j * rows + r0;
-      for (int b = 0; b < kBlocks; ++b) acc[b] = pmadd(Load(col + b * kSize), xj, acc[b]);
+    const Scalar* col = w + r0 + (kReverse ? (cols - 1) * rows : 0);
+    const Index col_step = kReverse ? -rows : rows;
+    const Scalar* xj = kReverse ? x + cols - 1 : x;
+    for (Index n = 0; n < cols; ++n, col += col_step, xj += kReverse ? -1 : 1) {
+      const Packet xp = Set(*xj);
+      for (int b = 0; b < kBlocks; ++b) acc[b] = pmadd(Load(col + b * kSize), xp, acc[b]);
     }
   }
 
-  template <int kBlocks>
-  static void GatesBlock(const Scalar* w, Index rows, Index cols, const Scalar* bias,
-                         const Scalar* x, Index hidden, Index r0, bool reverse, Scalar* gates) {
+  // gates rows r0 .. r0 + kBlocks*kSize: product, bias and activation.
+  template <int kBlocks, bool kReverse>
+  static EIGEN_ALWAYS_INLINE void GatesBlock(const Scalar* w, Index rows, Index cols,
+                                             const Scalar* bias, const Scalar* x, Index hidden,
+                                             Index r0, Scalar* gates) {
     // NOLINTNEXTLINE(modernize-avoid-c-arrays): std::array drops vector attributes
     Packet acc[kBlocks];
-    GemvBlock<kBlocks>(w, rows, cols, bias, x, r0, reverse, acc);
+    GemvBlock<kBlocks, kReverse>(w, rows, cols, bias, x, r0, acc);
     for (int b = 0; b < kBlocks; ++b) {
       const Index r = r0 + b * kSize;
       Store(gates + r, Activate(acc[b], r / hidden == 2));
@@ -87,7 +90,7 @@ struct Kernels {
   }
 
   // sigmoid(a) = 0.5 + 0.5 tanh(a / 2) on the i, f, o blocks; tanh(a) on the g block.
-  static Packet Activate(const Packet& a, bool is_g) {
+  static EIGEN_ALWAYS_INLINE Packet Activate(const Packet& a, bool is_g) {
     using Eigen::internal::pmadd;
     using Eigen::internal::pmul;
     using Eigen::internal::ptanh;
@@ -113,23 +116,23 @@ struct Kernels {
     const Index tail = n8 * 8 * kSize + n4 * 4 * kSize;
     if (!reverse) {
       for (Index b = 0; b < n8; ++b) {
-        GatesBlock<8>(w, rows, cols, bias, xh, hidden, b * 8 * kSize, false, gates);
+        GatesBlock<8, false>(w, rows, cols, bias, xh, hidden, b * 8 * kSize, gates);
       }
       for (Index b = 0; b < n4; ++b) {
-        GatesBlock<4>(w, rows, cols, bias, xh, hidden, (n8 * 8 + b * 4) * kSize, false, gates);
+        GatesBlock<4, false>(w, rows, cols, bias, xh, hidden, (n8 * 8 + b * 4) * kSize, gates);
       }
       for (Index r0 = tail; r0 < rows; r0 += kSize) {
-        GatesBlock<1>(w, rows, cols, bias, xh, hidden, r0, false, gates);
+        GatesBlock<1, false>(w, rows, cols, bias, xh, hidden, r0, gates);
       }
     } else {
       for (Index r0 = rows - kSize; r0 >= tail; r0 -= kSize) {
-        GatesBlock<1>(w, rows, cols, bias, xh, hidden, r0, true, gates);
+        GatesBlock<1, true>(w, rows, cols, bias, xh, hidden, r0, gates);
       }
       for (Index b = n4 - 1; b >= 0; --b) {
-        GatesBlock<4>(w, rows, cols, bias, xh, hidden, (n8 * 8 + b * 4) * kSize, true, gates);
+        GatesBlock<4, true>(w, rows, cols, bias, xh, hidden, (n8 * 8 + b * 4) * kSize, gates);
       }
       for (Index b = n8 - 1; b >= 0; --b) {
-        GatesBlock<8>(w, rows, cols, bias, xh, hidden, b * 8 * kSize, true, gates);
+        GatesBlock<8, true>(w, rows, cols, bias, xh, hidden, b * 8 * kSize, gates);
       }
     }
     for (Index u = 0; u < hidden; u += kSize) {
@@ -146,9 +149,10 @@ struct Kernels {
   // Gate derivatives of one backward step. dh holds dLoss/dh_t from later steps; adds
   // the head's dy_t * w_head, then writes dgates (4H) and updates dc in place from
   // dLoss/dc_t (later steps) to dLoss/dc_{t-1}.
-  static void BackwardGates(Index hidden, const Scalar* gates, const Scalar* tanh_c,
-                            const Scalar* c_prev, const Scalar* w_head, Scalar dy, const Scalar* dh,
-                            Scalar* dc, Scalar* dgates) {
+  static EIGEN_ALWAYS_INLINE void BackwardGates(Index hidden, const Scalar* gates,
+                                                const Scalar* tanh_c, const Scalar* c_prev,
+                                                const Scalar* w_head, Scalar dy, const Scalar* dh,
+                                                Scalar* dc, Scalar* dgates) {
     using Eigen::internal::pmadd;
     using Eigen::internal::pmul;
     using Eigen::internal::psub;
@@ -172,7 +176,8 @@ struct Kernels {
   // out (H) = W^T d, W column-major rows x cols (rows = 4H, a multiple of kSize):
   // kGroup dot products at a time, each with its own accumulator.
   template <int kGroup>
-  static void DotGroup(const Scalar* w, Index rows, const Scalar* d, Index j, Scalar* out) {
+  static EIGEN_ALWAYS_INLINE void DotGroup(const Scalar* w, Index rows, const Scalar* d, Index j,
+                                           Scalar* out) {
     using Eigen::internal::pmadd;
     // NOLINTNEXTLINE(modernize-avoid-c-arrays): std::array drops vector attributes
     Packet acc[kGroup];
@@ -187,8 +192,8 @@ struct Kernels {
   // out[:, j0 .. j0+kCols) rows r0 .. r0 + kRowBlocks*kSize of A B^T, with A rows x k and
   // B cols x k (column-major, leading dimension ldb), summed over all k.
   template <int kRowBlocks, int kCols>
-  static void OuterBlock(const Scalar* a, Index rows, const Scalar* b, Index ldb, Index k, Index r0,
-                         Index j0, Scalar* out) {
+  static EIGEN_ALWAYS_INLINE void OuterBlock(const Scalar* a, Index rows, const Scalar* b,
+                                             Index ldb, Index k, Index r0, Index j0, Scalar* out) {
     using Eigen::internal::pmadd;
     // NOLINTNEXTLINE(modernize-avoid-c-arrays): std::array drops vector attributes
     Packet acc[kCols][kRowBlocks];
@@ -226,8 +231,8 @@ struct Kernels {
   }
 
   // Groups last to first if `reverse` (see ForwardStep).
-  static void TransposedGemv(const Scalar* w, Index rows, Index cols, const Scalar* d, bool reverse,
-                             Scalar* out) {
+  static EIGEN_ALWAYS_INLINE void TransposedGemv(const Scalar* w, Index rows, Index cols,
+                                                 const Scalar* d, bool reverse, Scalar* out) {
     const Index groups = cols / 8;
     if (!reverse) {
       for (Index k = 0; k < groups; ++k) DotGroup<8>(w, rows, d, 8 * k, out);
@@ -386,10 +391,14 @@ Scalar LstmNetwork<Scalar>::LossAndGradient(const Eigen::Ref<const Matrix>& inpu
   xh.col(0).tail(hs) = h0;
   cell.col(0) = c0;
   const bool fast = Kernels<Scalar>::Usable(hs);
+  // Alternate the direction W is walked only when W exceeds a typical L1 data cache;
+  // when it fits, the forward order lets each step start on the first results earlier.
+  constexpr std::size_t kL1Bytes = std::size_t{32} * 1024;
+  const bool alternate = static_cast<std::size_t>(w_stacked.size()) * sizeof(Scalar) > kL1Bytes;
   if constexpr (Kernels<Scalar>::kAvailable) {
     for (Index t = 0; t < steps && fast; ++t) {
       Kernels<Scalar>::ForwardStep(w_stacked.data(), bias.data(), hs, rows, xh.col(t).data(),
-                                   cell.col(t).data(), /*reverse=*/(t & 1) != 0,
+                                   cell.col(t).data(), /*reverse=*/alternate && (t & 1) != 0,
                                    gates.col(t).data(), cell.col(t + 1).data(),
                                    tanh_c.col(t).data(), xh.col(t + 1).data() + in);
     }
@@ -427,7 +436,7 @@ Scalar LstmNetwork<Scalar>::LossAndGradient(const Eigen::Ref<const Matrix>& inpu
                                      cell.col(t).data(), w_head.data(), dy[t], dh.data(), dc.data(),
                                      dgates.col(t).data());
       Kernels<Scalar>::TransposedGemv(w_hidden.data(), gs, hs, dgates.col(t).data(),
-                                      /*reverse=*/((steps - t) & 1) != 0, dh.data());
+                                      /*reverse=*/alternate && ((steps - t) & 1) != 0, dh.data());
     }
   }
   for (Index t = steps - 1; t >= 0 && !fast; --t) {
