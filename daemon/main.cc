@@ -2,8 +2,11 @@
 #include <CLI/CLI.hpp>
 #include <cstdio>
 #include <string>
+#include <vector>
 
 #include "build_info.h"
+#include "command.h"
+#include "commands.h"
 
 namespace {
 
@@ -25,7 +28,10 @@ int main(int argc, char** argv) {
 
   CLI::App* version = app.add_subcommand("version", "Print the version and build facts");
   CLI::App* help = app.add_subcommand("help", "Show this help");
+  const std::vector<nightjar::daemon::Command> commands = nightjar::daemon::AddCommands(app);
 
+  // Taken before parsing: afterwards CLI11 formats the chosen subcommand's help instead.
+  const std::string top_level_help = app.help();
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& error) {
@@ -33,9 +39,9 @@ int main(int argc, char** argv) {
   }
 
   if (version->parsed()) return PrintVersion();
-  if (help->parsed() || app.get_subcommands().empty()) {
-    std::fputs(app.help().c_str(), stdout);
-    return app.get_subcommands().empty() ? 2 : 0;
+  for (const auto& command : commands) {
+    if (command.app->parsed()) return command.run();
   }
-  return 0;
+  std::fputs(top_level_help.c_str(), stdout);
+  return help->parsed() ? 0 : 2;
 }

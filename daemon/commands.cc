@@ -1,0 +1,12 @@
+#include "commands.h"
+
+namespace nightjar::daemon {
+
+std::vector<Command> AddCommands(CLI::App& app) {
+  std::vector<Command> commands;
+  // One line per subcommand, e.g. commands.push_back(AddReplayCommand(app));
+  (void)app;
+  return commands;
+}
+
+}  // namespace nightjar::daemon
