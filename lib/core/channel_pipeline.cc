@@ -181,6 +181,9 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   last_reading_ = reading;
   counters_.last_expected = context.expected;
   counters_.last_z = reading.z;
+  counters_.last_residual_sigma = monitor_.sigma() * scaler_.scale();
+  counters_.last_ratio = reading.ratio;
+  counters_.last_detector = reading.detector;
 
   if (monitor_.armed()) {
     UpdateAnomalyAlarm(reading, context, out);

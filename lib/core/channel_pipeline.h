@@ -48,6 +48,11 @@ struct ChannelStatus {
   double last_value = 0.0;
   double last_expected = 0.0;
   double last_z = 0.0;
+  // Residual standard deviation in engineering units: expected +- 3 of these is the
+  // band a report draws around the forecast.
+  double last_residual_sigma = 0.0;
+  double last_ratio = 0.0;  // largest chart statistic / threshold (>= 1 signals)
+  Detector last_detector = Detector::kCusum;  // the chart giving last_ratio
   double sample_period_s = 0.0;  // 0 until known
 };
 
