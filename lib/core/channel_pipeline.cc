@@ -167,7 +167,9 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   // "next = last" is where it starts and what it has to improve on; the level and the
   // time of day come in as context.
   const double predicted_increment =
-      static_cast<double>(predictor_.prediction()) * IncrementScale();
+      options_.forecaster == Forecaster::kLstm
+          ? static_cast<double>(predictor_.prediction()) * IncrementScale()
+          : 0.0;
   context.expected = last_used_ + predicted_increment;
   const bool was_in_alarm = alarm(AlarmCondition::kAnomaly).active();
   const bool trusted = !was_in_alarm && !flatline;
@@ -212,7 +214,9 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
     increment_moments_.Add(increment);
   }
   FillFeatures(time, increment, used);
-  predictor_.Observe(features_.data(), learn, workspace);
+  if (options_.forecaster == Forecaster::kLstm) {
+    predictor_.Observe(features_.data(), learn, workspace);
+  }
   last_used_ = used;
 }
 

@@ -22,6 +22,10 @@ Status ValidateTiming(const AlarmTiming& timing, const std::string& prefix) {
 
 }  // namespace
 
+const char* ForecasterName(Forecaster forecaster) {
+  return forecaster == Forecaster::kLstm ? "lstm" : "last_value";
+}
+
 Status ValidateChannelOptions(const ChannelOptions& options) {
   if (!(options.sample_period_s >= 0.0) || !std::isfinite(options.sample_period_s)) {
     return Invalid("sample_period_s", "must be >= 0 s (0 = estimate)");

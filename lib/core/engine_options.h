@@ -20,6 +20,12 @@
 
 namespace nightjar::core {
 
+// What forecasts the next value. kLastValue ("next = last") is the common-sense
+// baseline every forecaster must beat; it runs the same charts and alarms, so replay
+// can score the LSTM against it on equal terms.
+enum class Forecaster { kLstm, kLastValue };
+const char* ForecasterName(Forecaster forecaster);
+
 struct ChannelOptions {
   // Engineering unit shown in messages, e.g. "m3/h". Default empty.
   std::string unit;
@@ -30,6 +36,8 @@ struct ChannelOptions {
   int warmup_samples = 1800;
   // Feed sin/cos of the UTC time of day to the predictor (daily load cycles). Default true.
   bool time_of_day_features = true;
+  // The forecaster in front of the charts. Default kLstm.
+  Forecaster forecaster = Forecaster::kLstm;
 
   InputScalerOptions scaler;
   // predictor.input_size is set by the engine (increment, level, and sin/cos of the time of day if

@@ -268,5 +268,24 @@ TEST(EngineTest, AcknowledgeAndShelveThroughTheEngine) {
   EXPECT_EQ(alerts[0].phase, AlertPhase::kRaise);
 }
 
+TEST(EngineTest, LastValueBaselineForecastsTheLastSample) {
+  // "next = last" (common practice baseline): the expected value is the previous sample.
+  EngineOptions options = SmallModel();
+  options.defaults.forecaster = Forecaster::kLastValue;
+  Engine engine(options);
+  FlowSignal signal(9);
+  std::vector<Alert> alerts;
+  const ChannelId id = *engine.AddChannel("skid1.flow");
+  double previous = 0.0;
+  for (int i = 0; i < 400; ++i) {
+    const double x = signal.At(i);
+    engine.Process(id, At(i), x, alerts);
+    if (i > 200) {
+      EXPECT_DOUBLE_EQ(engine.channel_status(id).last_expected, previous);
+    }
+    previous = x;
+  }
+}
+
 }  // namespace
 }  // namespace nightjar::core
