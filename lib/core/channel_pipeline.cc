@@ -195,15 +195,18 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
     if (learnt_samples_ >= options_.warmup_samples) TryArm(designer);
   }
 
-  // A sample far off the forecast is not fed to the model: it continues its own
-  // forecast (closed loop) and learns nothing. A one-step predictor fed a faulty value
-  // follows a step within a sample or two and the evidence vanishes before the charts
-  // can add it up (DESIGN-NOTES §3); a lone glitch costs one forecast step. The forecast
-  // increment is damped in closed loop, and after kMaxClosedLoopSteps the model re-syncs
-  // with the measurements so a lasting change of level cannot hold it off for ever.
+  // While in alarm, and for any sample far off the forecast, the model is not fed the
+  // measurement: it continues its own forecast (closed loop) and learns nothing. A one-step
+  // predictor fed a faulty value follows a step within a sample or two and the evidence vanishes
+  // before the charts can add it up (DESIGN-NOTES §3); a lone glitch costs one forecast step. The
+  // forecast increment is damped in closed loop, and after kMaxClosedLoopSteps the model re-syncs
+  // with the measurements (and stays open loop until the channel is back to normal) so
+  // a lasting change of level cannot hold it off for ever.
   const bool in_alarm = alarm(AlarmCondition::kAnomaly).active();
-  const bool suspect = monitor_.armed() && std::abs(reading.z) >= kSuspectSigmas &&
-                       closed_loop_steps_ < kMaxClosedLoopSteps;
+  if (!in_alarm && std::abs(reading.z) < kSuspectSigmas) held_out_ = false;
+  if (closed_loop_steps_ >= kMaxClosedLoopSteps) held_out_ = true;  // re-sync until normal
+  const bool suspect =
+      monitor_.armed() && !held_out_ && (in_alarm || std::abs(reading.z) >= kSuspectSigmas);
   closed_loop_steps_ = suspect ? closed_loop_steps_ + 1 : 0;
   const double damping = std::pow(kClosedLoopDamping, static_cast<double>(closed_loop_steps_));
   const double used = suspect ? last_used_ + damping * predicted_increment : value;

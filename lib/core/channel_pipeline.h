@@ -51,9 +51,9 @@ struct ChannelStatus {
   // Residual standard deviation in engineering units: expected +- 3 of these is the
   // band a report draws around the forecast.
   double last_residual_sigma = 0.0;
-  double last_ratio = 0.0;  // largest chart statistic / threshold (>= 1 signals)
+  double last_ratio = 0.0;                    // largest chart statistic / threshold (>= 1 signals)
   Detector last_detector = Detector::kCusum;  // the chart giving last_ratio
-  double sample_period_s = 0.0;  // 0 until known
+  double sample_period_s = 0.0;               // 0 until known
 };
 
 class ChannelPipeline {
@@ -112,6 +112,7 @@ class ChannelPipeline {
 
   bool has_last_used_ = false;
   int closed_loop_steps_ = 0;
+  bool held_out_ = false;   // closed loop ran out: fed measurements until back to normal
   double last_used_ = 0.0;  // last value the model was fed (the forecast while in alarm)
   bool has_last_time_ = false;
   TimestampUs last_time_ = 0;

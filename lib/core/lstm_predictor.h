@@ -102,6 +102,10 @@ class LstmPredictor {
 
   const LstmPredictorOptions& options() const { return options_; }
   const LstmNetwork<float>& network() const { return network_; }
+  // Recurrent state after the newest sample (what prediction() was computed from); a
+  // caller may copy it to run the network ahead on its own (closed-loop forecasts).
+  const Eigen::VectorXf& hidden_state() const { return h_; }
+  const Eigen::VectorXf& cell_state() const { return c_; }
   // Adam steps taken so far.
   std::int64_t train_steps() const { return adam_.step_count(); }
   // Step size the next training step will use.
