@@ -66,6 +66,7 @@ TEST(ResidualMonitorTest, WhiteNoiseKeepsTheBudget) {
   const RateResult r = CountFalseAlarms(0.0, true, 101);
   EXPECT_GE(r.raises, kLowest * r.expected) << r.raises << " raises, budget " << r.expected;
   EXPECT_LE(r.raises, kHighest * r.expected) << r.raises << " raises, budget " << r.expected;
+  RecordProperty("white_ratio", std::to_string(r.raises / r.expected));
 }
 
 TEST(ResidualMonitorTest, Ar1NoiseKeepsTheBudgetWithCorrection) {
@@ -76,6 +77,7 @@ TEST(ResidualMonitorTest, Ar1NoiseKeepsTheBudgetWithCorrection) {
       << corrected.raises << " raises, budget " << corrected.expected;
   EXPECT_LE(corrected.raises, kHighest * corrected.expected)
       << corrected.raises << " raises, budget " << corrected.expected;
+  RecordProperty("ar1_ratio", std::to_string(corrected.raises / corrected.expected));
   // Without it the same noise blows through the budget.
   const RateResult uncorrected = CountFalseAlarms(0.5, false, 202);
   EXPECT_GT(uncorrected.raises, 3.0 * uncorrected.expected)
