@@ -98,7 +98,10 @@ ChannelPipeline::ChannelPipeline(std::string name, const ChannelOptions& options
       alarms_{{Alarm(options.anomaly_alarm), Alarm(options.sensor_alarm),
                Alarm(options.sensor_alarm), Alarm(options.sensor_alarm),
                Alarm(options.sensor_alarm)}},
-      features_(static_cast<std::size_t>(PredictorOptionsFor(options, seed).input_size), 0.0f) {}
+      features_(static_cast<std::size_t>(PredictorOptionsFor(options, seed).input_size), 0.0f) {
+  matchers_.reserve(options.events.size());
+  for (const EventTemplate& event : options.events) matchers_.emplace_back(event);
+}
 
 const Alarm& ChannelPipeline::alarm(AlarmCondition condition) const {
   return alarms_[static_cast<std::size_t>(condition)];
@@ -129,6 +132,7 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   if (after_gap) {  // the recurrent state and the last increment are meaningless now
     predictor_.ResetSequence();
     has_last_used_ = false;
+    for (TemplateMatcher& matcher : matchers_) matcher.Reset();
   }
 
   const SensorCheck check = health_.Check(time, value);
@@ -147,6 +151,7 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
     return;
   }
   counters_.last_value = value;
+  MatchEvents(context, out);
 
   if (!has_last_used_) {  // first sample, or first after a gap: no increment yet
     last_used_ = value;
@@ -240,6 +245,32 @@ void ChannelPipeline::FillFeatures(TimestampUs time, double increment, double le
         2.0 * std::numbers::pi * static_cast<double>(of_day) / static_cast<double>(day_us);
     features_[2] = static_cast<float>(std::sin(angle));
     features_[3] = static_cast<float>(std::cos(angle));
+  }
+}
+
+void ChannelPipeline::MatchEvents(const Context& context, std::vector<Alert>& out) {
+  for (std::size_t i = 0; i < matchers_.size(); ++i) {
+    TemplateMatcher& matcher = matchers_[i];
+    const std::optional<TemplateMatch> match = matcher.Add(context.value);
+    if (!match) continue;
+    // An event is a moment, not a condition: its raise and clear carry the same time.
+    Alert alert;
+    alert.time = context.time;
+    alert.channel = name_;
+    alert.kind = AlertKind::kEvent;
+    alert.detector = Detector::kTemplate;
+    alert.value = context.value;
+    alert.expected = std::numeric_limits<double>::quiet_NaN();
+    alert.z = std::numeric_limits<double>::quiet_NaN();
+    alert.statistic = match->distance;
+    alert.threshold = options_.events[i].max_distance;
+    alert.priority = options_.event_priority;
+    alert.message = name_ + ": " + matcher.name() + " seen over the last " +
+                    std::to_string(match->length) + " samples (shape distance " +
+                    FormatValue(match->distance) + ")";
+    out.push_back(alert);
+    alert.phase = AlertPhase::kClear;
+    out.push_back(std::move(alert));
   }
 }
 
@@ -398,8 +429,10 @@ ChannelStatus ChannelPipeline::status() const {
 }
 
 std::size_t ChannelPipeline::MemoryBytes() const {
+  std::size_t matchers_bytes = matchers_.capacity() * sizeof(TemplateMatcher);
+  for (const TemplateMatcher& matcher : matchers_) matchers_bytes += matcher.MemoryBytes();
   return sizeof(*this) + name_.capacity() + options_.unit.capacity() +
-         features_.capacity() * sizeof(float) + predictor_.MemoryBytes();
+         features_.capacity() * sizeof(float) + predictor_.MemoryBytes() + matchers_bytes;
 }
 
 }  // namespace nightjar::core

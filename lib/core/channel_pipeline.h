@@ -20,6 +20,7 @@
 #include "core/running_moments.h"
 #include "core/sample_period.h"
 #include "core/sensor_health.h"
+#include "core/template_matcher.h"
 #include "core/threshold_design.h"
 
 namespace nightjar::core {
@@ -96,6 +97,7 @@ class ChannelPipeline {
   void TryArm(ThresholdDesigner& designer);
   void EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
                 const ResidualReading* reading, std::vector<Alert>& out);
+  void MatchEvents(const Context& context, std::vector<Alert>& out);
   void FillFeatures(TimestampUs time, double increment, double level);
   double IncrementScale() const;
 
@@ -109,6 +111,7 @@ class ChannelPipeline {
   ResidualMonitor monitor_;
   std::array<Alarm, kAlarmConditionCount> alarms_;
   std::vector<float> features_;
+  std::vector<TemplateMatcher> matchers_;  // one per expected-event template
 
   bool has_last_used_ = false;
   int closed_loop_steps_ = 0;

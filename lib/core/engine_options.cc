@@ -68,6 +68,11 @@ Status ValidateChannelOptions(const ChannelOptions& options) {
     return Invalid("sensor.gap_periods", "must be > 1 sample period");
   }
   if (Status t = ValidateTiming(options.anomaly_alarm, "anomaly_alarm"); !t.ok()) return t;
+  for (std::size_t i = 0; i < options.events.size(); ++i) {
+    if (Status e = ValidateEventTemplate(options.events[i]); !e.ok()) {
+      return Status::InvalidArgument("events[" + std::to_string(i) + "]." + e.message());
+    }
+  }
   return ValidateTiming(options.sensor_alarm, "sensor_alarm");
 }
 

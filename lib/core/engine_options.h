@@ -8,6 +8,7 @@
 #include <functional>
 #include <string>
 #include <string_view>
+#include <vector>
 
 #include "core/alarm.h"
 #include "core/alert.h"
@@ -16,6 +17,7 @@
 #include "core/residual_monitor.h"
 #include "core/sensor_health.h"
 #include "core/status.h"
+#include "core/template_matcher.h"
 #include "core/threshold_design.h"
 
 namespace nightjar::core {
@@ -51,6 +53,10 @@ struct ChannelOptions {
   AlarmTiming anomaly_alarm{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2};
   // Raise/clear timing of sensor alarms (not finite, range, flatline, gap).
   AlarmTiming sensor_alarm{.on_delay_s = 0.0, .off_delay_s = 10.0, .deadband = 0.0};
+  // Expected events recognised on this channel by their shape (pump start, back-flush).
+  // Each match is reported as an event alert. Default none.
+  std::vector<EventTemplate> events;
+  Priority event_priority = Priority::kLow;
   Priority anomaly_priority = Priority::kMedium;
   Priority sensor_priority = Priority::kLow;
 };

@@ -10,6 +10,7 @@
 #include <algorithm>
 #include <cassert>
 #include <cmath>
+#include <cstring>
 #include <string>
 
 namespace nightjar::core {
@@ -17,6 +18,22 @@ namespace nightjar::core {
 using Eigen::Index;
 
 namespace {
+
+// bfloat16: the top 16 bits of an IEEE float, rounded to nearest even. States are finite.
+std::uint16_t ToBfloat16(float value) {
+  std::uint32_t bits = 0;
+  std::memcpy(&bits, &value, sizeof bits);
+  bits += 0x7FFFu + ((bits >> 16) & 1u);
+  return static_cast<std::uint16_t>(bits >> 16);
+}
+
+float FromBfloat16(std::uint16_t stored) {
+  const std::uint32_t bits = static_cast<std::uint32_t>(stored) << 16;
+  float value = 0.0f;
+  std::memcpy(&value, &bits, sizeof value);
+  return value;
+}
+
 // Keeps the packing buffers of the weight-gradient product (about 16 * H * W bytes)
 // within Eigen's 128 KiB stack-allocation limit, so training never touches the heap.
 constexpr long kMaxHiddenTimesWindow = 8192;
@@ -78,7 +95,10 @@ LstmPredictor::LstmPredictor(const LstmPredictorOptions& options)
   assert(Validate(options).ok());
   network_.InitializeUniform(options.seed, static_cast<float>(options.forget_bias));
   const Index in = options.input_size, hs = options.hidden_size;
-  ring_.setZero(in + 2 * hs + 1, options.window);
+  ring_.setZero(in + 1, options.window);
+  states_.setZero(2 * hs, options.window);
+  start_h_.setZero(hs);
+  start_c_.setZero(hs);
   h_.setZero(hs);
   c_.setZero(hs);
 }
@@ -107,7 +127,7 @@ void LstmPredictor::Observe(const float* features, bool learn, LstmWorkspace<flo
     return;
   }
   if (learn && last_learnable_) {
-    ring_(in + 2 * hs, Slot(1)) = features[0];
+    ring_(in, Slot(1)) = features[0];
     pairs_ = std::min<Index>(pairs_ + 1, ring_.cols());
     if (++since_train_ >= options_.train_every) {
       since_train_ = 0;
@@ -117,10 +137,11 @@ void LstmPredictor::Observe(const float* features, bool learn, LstmWorkspace<flo
     pairs_ = 0;
     since_train_ = 0;
   }
-  auto entry = ring_.col(head_);
-  entry.head(in) = x;
-  entry.segment(in, hs) = h_;
-  entry.segment(in + hs, hs) = c_;
+  ring_.col(head_).head(in) = x;
+  for (Index r = 0; r < hs; ++r) {
+    states_(r, head_) = ToBfloat16(h_[r]);
+    states_(hs + r, head_) = ToBfloat16(c_[r]);
+  }
   head_ = (head_ + 1) % ring_.cols();
   last_learnable_ = learn;
 
@@ -136,18 +157,23 @@ void LstmPredictor::Train(LstmWorkspace<float>& ws) {
   for (Index k = 0; k < steps; ++k) {
     const Index slot = Slot(steps - k);
     inputs.col(k) = ring_.col(slot).head(in);
-    targets[k] = ring_(in + 2 * hs, slot);
+    targets[k] = ring_(in, slot);
   }
-  const auto first = ring_.col(Slot(steps));
+  const Index first = Slot(steps);
+  for (Index r = 0; r < hs; ++r) {
+    start_h_[r] = FromBfloat16(states_(r, first));
+    start_c_[r] = FromBfloat16(states_(hs + r, first));
+  }
   auto gradient = ws.gradient(network_.parameter_count());
-  const float loss = network_.LossAndGradient(inputs, targets, first.segment(in, hs),
-                                              first.segment(in + hs, hs), ws, gradient);
+  const float loss = network_.LossAndGradient(inputs, targets, start_h_, start_c_, ws, gradient);
   const float norm = ClipGradientNorm(gradient, static_cast<float>(options_.gradient_clip_norm));
   if (!std::isfinite(loss) || !std::isfinite(norm)) return;  // keep the weights usable
   adam_.set_learning_rate(current_learning_rate());
   adam_.Step(network_.parameters(), gradient);
   last_loss_ = loss;
 }
+
+float LstmPredictor::RoundStoredState(float value) { return FromBfloat16(ToBfloat16(value)); }
 
 double LstmPredictor::current_learning_rate() const {
   const auto steps = static_cast<double>(adam_.step_count());
@@ -166,7 +192,10 @@ void LstmPredictor::ResetSequence() {
 
 std::size_t LstmPredictor::MemoryBytes() const {
   return network_.MemoryBytes() + adam_.MemoryBytes() +
-         static_cast<std::size_t>(ring_.size() + h_.size() + c_.size()) * sizeof(float);
+         static_cast<std::size_t>(ring_.size() + h_.size() + c_.size() + start_h_.size() +
+                                  start_c_.size()) *
+             sizeof(float) +
+         static_cast<std::size_t>(states_.size()) * sizeof(std::uint16_t);
 }
 
 }  // namespace nightjar::core

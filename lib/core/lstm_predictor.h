@@ -110,6 +110,9 @@ class LstmPredictor {
   std::int64_t train_steps() const { return adam_.step_count(); }
   // Step size the next training step will use.
   double current_learning_rate() const;
+  // What a stored recurrent-state value reads back as (bfloat16, round to nearest even).
+  static float RoundStoredState(float value);
+
   // Loss of the last training window before its update (0 before the first).
   float last_loss() const { return last_loss_; }
 
@@ -120,9 +123,15 @@ class LstmPredictor {
   LstmPredictorOptions options_;
   LstmNetwork<float> network_;
   AdamOptimizer<float> adam_;
-  // Ring of the last W samples, one column each: [x (I); h before x (H); c before x (H);
-  // target (1)], the target being features[0] of the sample after x.
+  // Ring of the last W samples, one column each: [x (I); target (1)], the target being
+  // features[0] of the sample after x; and beside it the recurrent state before x,
+  // [h (H); c (H)], stored as bfloat16. That state only seeds a training window and was
+  // computed under older weights anyway, so 8 mantissa bits lose nothing that matters,
+  // and halving it keeps a whole channel within 64 KiB at H = 32.
   Eigen::MatrixXf ring_;
+  Eigen::Matrix<std::uint16_t, Eigen::Dynamic, Eigen::Dynamic> states_;
+  Eigen::VectorXf start_h_;  // window-start state decoded for training
+  Eigen::VectorXf start_c_;
   Eigen::VectorXf h_;
   Eigen::VectorXf c_;
   Eigen::Index head_ = 0;        // ring column the next sample goes to

@@ -72,6 +72,12 @@ TemplateMatcher::TemplateMatcher(const EventTemplate& t)
   KeoghEnvelope(template_, band_, upper_, lower_);
 }
 
+std::size_t TemplateMatcher::MemoryBytes() const {
+  return name_.capacity() + (template_.capacity() + upper_.capacity() + lower_.capacity() +
+                             window_.capacity() + normalised_.capacity() + rows_.capacity()) *
+                                sizeof(double);
+}
+
 void TemplateMatcher::Reset() {
   next_ = 0;
   filled_ = 0;

@@ -58,6 +58,9 @@ class TemplateMatcher {
   // Forgets the window (after a data gap).
   void Reset();
 
+  // Heap bytes owned (template, envelope, window and scratch).
+  std::size_t MemoryBytes() const;
+
   // Per-sample distance of the last window examined (+inf if it was skipped or pruned).
   double last_distance() const { return last_distance_; }
 

@@ -388,5 +388,49 @@ TEST(EngineTest, MillionCleanSamplesKeepTheFalseAlarmBudget) {
   EXPECT_TRUE(Raises(alerts, AlertKind::kSensor).empty());
 }
 
+TEST(EngineTest, ReportsAnExpectedEventFromItsTemplate) {
+  // A CW2 pump start (direct-on-line inrush decaying to the running current) configured
+  // as an expected event on the motor current: one event alert (raise and clear) when it
+  // happens, none in the hour of steady running before it.
+  std::vector<double> start;
+  for (int i = 0; i < 60; ++i)
+    start.push_back(i < 5 ? 0.0 : 35.0 + 175.0 * std::exp(-(i - 5) / 3.0));
+  EngineOptions options = SmallModel();
+  options.defaults.sensor.flatline_samples = 0;
+  options.defaults.events.push_back(EventTemplate{.name = "pump_start", .shape = start});
+  Engine engine(options);
+  std::mt19937_64 rng(61);
+  std::normal_distribution<double> noise(0.0, 0.5);
+  std::vector<Alert> alerts;
+  const ChannelId id = *engine.AddChannel("cw2.pump_a.motor_current");
+  int i = 0;
+  for (; i < 3600; ++i) engine.Process(id, At(i), 35.0 + noise(rng), alerts);
+  for (int k = 0; k < 300; ++k, ++i) engine.Process(id, At(i), noise(rng) * 0.05, alerts);
+  for (const double v : start) engine.Process(id, At(i++), v + noise(rng), alerts);
+  for (int k = 0; k < 300; ++k, ++i) engine.Process(id, At(i), 35.0 + noise(rng), alerts);
+  std::vector<Alert> events;
+  for (const Alert& a : alerts) {
+    if (a.kind == AlertKind::kEvent) events.push_back(a);
+  }
+  ASSERT_EQ(events.size(), 2u) << Describe(alerts);
+  EXPECT_EQ(events[0].phase, AlertPhase::kRaise);
+  EXPECT_EQ(events[1].phase, AlertPhase::kClear);
+  EXPECT_EQ(events[0].detector, Detector::kTemplate);
+  EXPECT_GE(events[0].time, At(3900 + 40));
+  EXPECT_LE(events[0].time, At(3900 + 70));
+  EXPECT_NE(events[0].message.find("pump_start"), std::string::npos);
+  EXPECT_LE(events[0].statistic, events[0].threshold);
+}
+
+TEST(EngineTest, ChannelFitsIn64KiBAtDefaults) {
+  // Budget from the engine's design brief: a whole channel (model, optimiser state,
+  // rings, charts, alarms) within 64 KiB at H = 32, W = 32, so 10 000 channels fit in
+  // well under 1 GiB on an edge box.
+  Engine engine(EngineOptions{});
+  const ChannelId id = *engine.AddChannel("cw2.pump_a.flow");
+  RecordProperty("channel_bytes", std::to_string(engine.channel(id).MemoryBytes()));
+  EXPECT_LE(engine.channel(id).MemoryBytes(), 65536u);
+}
+
 }  // namespace
 }  // namespace nightjar::core

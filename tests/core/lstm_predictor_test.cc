@@ -1,9 +1,3 @@
-// GCC 12 false positive inside its AVX-512 intrinsics headers (fixed in GCC 13).
-#if defined(__GNUC__) && !defined(__clang__) && __GNUC__ == 12
-#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
-#pragma GCC diagnostic ignored "-Wuninitialized"
-#endif
-
 #include "core/lstm_predictor.h"
 
 #include <gtest/gtest.h>
@@ -156,7 +150,9 @@ TEST(LstmPredictorTest, TrainingFollowsDocumentedWindowRules) {
       pairs = 0;
       since_train = 0;
     }
-    history.push_back({x, h, c, 0.0f});
+    // The predictor stores window-start states as bfloat16 (documented); so does this.
+    history.push_back({x, h.unaryExpr(&LstmPredictor::RoundStoredState),
+                       c.unaryExpr(&LstmPredictor::RoundStoredState), 0.0f});
     last_learnable = learn;
     net.Step(x, h, c, ref_ws);
     prediction = net.Output(h);
@@ -208,14 +204,15 @@ TEST(LstmPredictorTest, SameInputsGiveBitIdenticalPredictions) {
 
 // Budget: <= 64 KiB per channel at H = 32, I = 3, W = 32 (the defaults). Parameters
 // P = 4H(I+H+1) + H + 1 = 4641 floats, times 3 (weights, Adam m and v), plus the ring
-// (I + 2H + 1) x W and h, c: 4 * (13923 + 2176 + 64) = 64 652 bytes.
+// (I + 1) x W floats, h, c and the decoded window-start state (4H floats), and the
+// stored states 2H x W in bfloat16: 4 * (13923 + 128 + 128) + 2 * 2048 = 60 812 bytes.
 TEST(LstmPredictorTest, MemoryFitsBudgetAtDefaultSize) {
   const LstmPredictorOptions options;
   ASSERT_EQ(options.hidden_size, 32);
   ASSERT_EQ(options.input_size, 3);
   ASSERT_EQ(options.window, 32);
   const LstmPredictor predictor(options);
-  EXPECT_EQ(predictor.MemoryBytes(), 64652u);
+  EXPECT_EQ(predictor.MemoryBytes(), 60812u);
   EXPECT_LE(predictor.MemoryBytes(), 65536u);
   EXPECT_LE(predictor.MemoryBytes() + sizeof(LstmPredictor), 65536u);
 }
