@@ -177,7 +177,10 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
           : 0.0;
   context.expected = last_used_ + predicted_increment;
   const bool was_in_alarm = alarm(AlarmCondition::kAnomaly).active();
-  const bool trusted = !was_in_alarm && !flatline;
+  // Once the closed-loop hold has run out (held_out_), the alarm is being re-baselined:
+  // the residual scale may learn again, or a scale learnt on a quiet spell would pin the
+  // alarm for ever.
+  const bool trusted = (!was_in_alarm || held_out_) && !flatline;
   const double residual = (value - context.expected) / scaler_.scale();
   const double z_now = residual / monitor_.sigma();
   const bool gate_open =

@@ -47,7 +47,10 @@ struct ChannelOptions {
   LstmPredictorOptions predictor;
   ResidualMonitorOptions residual;
   ThresholdOptions thresholds;
-  SensorHealthOptions sensor;
+  // Flatline check on by default: 600 identical samples (10 min at 1 Hz). A channel that
+  // holds its value while learning switches the check off for itself (a setpoint, a
+  // quantised or slowly sampled signal), so this rarely needs tuning.
+  SensorHealthOptions sensor{.flatline_samples = 600};
 
   // Raise/clear timing of anomaly alarms (deadband is on statistic/threshold).
   AlarmTiming anomaly_alarm{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2};

@@ -432,5 +432,27 @@ TEST(EngineTest, ChannelFitsIn64KiBAtDefaults) {
   EXPECT_LE(engine.channel(id).MemoryBytes(), 65536u);
 }
 
+TEST(EngineTest, AQuietSpellDoesNotPinAnAlarmForEver) {
+  // With the flatline check off, a sensor that sits still for 20 min teaches the residual
+  // scale that nothing moves; when it moves again an alarm is right, but it must end once
+  // the closed-loop hold (300 samples) runs out and the scale re-learns.
+  EngineOptions options = SmallModel();
+  options.defaults.sensor.flatline_samples = 0;
+  Engine engine(options);
+  FlowSignal signal(71);
+  std::vector<Alert> alerts;
+  const ChannelId id = *engine.AddChannel("cw2.pump_a.flow");
+  double held = 0.0;
+  for (int i = 0; i < kFaultAt + 3000; ++i) {
+    double x = signal.At(i);
+    if (i == kFaultAt) held = x;
+    if (i >= kFaultAt && i < kFaultAt + 1200) x = held;
+    engine.Process(id, At(i), x, alerts);
+  }
+  SCOPED_TRACE(Describe(alerts));
+  EXPECT_EQ(engine.channel_status(id).state, ChannelState::kArmed)
+      << "alarm still up 30 min after the sensor moves again";
+}
+
 }  // namespace
 }  // namespace nightjar::core
