@@ -5,7 +5,7 @@ namespace nightjar::daemon {
 std::vector<Command> AddCommands(CLI::App& app) {
   std::vector<Command> commands;
   // One line per subcommand, e.g. commands.push_back(AddReplayCommand(app));
-  (void)app;
+  commands.push_back(AddCheckConfigCommand(app));
   return commands;
 }
 

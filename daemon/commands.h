@@ -10,5 +10,6 @@
 namespace nightjar::daemon {
 
 std::vector<Command> AddCommands(CLI::App& app);
+Command AddCheckConfigCommand(CLI::App& app);
 
 }  // namespace nightjar::daemon
