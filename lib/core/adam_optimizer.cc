@@ -1,10 +1,3 @@
-// GCC 12 reports -W(maybe-)uninitialized inside its own AVX-512 intrinsics headers
-// (_mm256_undefined_* in Eigen's packet code), a false positive fixed in GCC 13.
-#if defined(__GNUC__) && !defined(__clang__) && __GNUC__ == 12
-#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
-#pragma GCC diagnostic ignored "-Wuninitialized"
-#endif
-
 #include "core/adam_optimizer.h"
 
 #include <cassert>

@@ -7,12 +7,6 @@
 // per sample analytically (formulas at TrainFlops / InferFlops).
 // BM_Fp32FmaPeak: independent chains of packet FMAs, the ceiling for the above.
 
-// GCC 12 false positive inside its AVX-512 intrinsics headers (fixed in GCC 13).
-#if defined(__GNUC__) && !defined(__clang__) && __GNUC__ == 12
-#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
-#pragma GCC diagnostic ignored "-Wuninitialized"
-#endif
-
 #include <benchmark/benchmark.h>
 
 #include <Eigen/Core>

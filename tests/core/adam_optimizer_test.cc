@@ -1,9 +1,3 @@
-// GCC 12 false positive inside its AVX-512 intrinsics headers (fixed in GCC 13).
-#if defined(__GNUC__) && !defined(__clang__) && __GNUC__ == 12
-#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
-#pragma GCC diagnostic ignored "-Wuninitialized"
-#endif
-
 #include "core/adam_optimizer.h"
 
 #include <gtest/gtest.h>
