@@ -2,9 +2,11 @@
 
 #include <algorithm>
 #include <cmath>
+#include <initializer_list>
 #include <limits>
 #include <numbers>
 #include <string>
+#include <string_view>
 #include <utility>
 
 #include "core/alert_message.h"
@@ -352,38 +354,54 @@ void ChannelPipeline::EmitEdge(AlarmCondition condition, AlarmEdge edge, const C
   alert.statistic = alert.phase == AlertPhase::kRaise ? 1.0 : 0.0;
   alert.threshold = 1.0;
   const bool raise = alert.phase == AlertPhase::kRaise;
+  // Built by appending pieces: GCC 12 gives a false -Wrestrict on `" " + std::string`.
   std::string message = name_;
+  const std::string value_text = FormatWithUnit(context.value, unit);
+  auto add = [&message](std::initializer_list<std::string_view> parts) {
+    for (const std::string_view part : parts) message.append(part);
+  };
   switch (condition) {
     case AlarmCondition::kNotFinite:
       alert.detector = Detector::kNotFinite;
-      message += raise ? " sent a value that is not a number (NaN or Inf)"
-                       : " sends numbers again: " + FormatWithUnit(context.value, unit);
+      if (raise) {
+        add({" sent a value that is not a number (NaN or Inf)"});
+      } else {
+        add({" sends numbers again: ", value_text});
+      }
       break;
     case AlarmCondition::kRange:
       alert.detector = Detector::kRange;
-      message +=
-          raise ? " " + FormatWithUnit(context.value, unit) + " is outside its physical range [" +
-                      FormatValue(options_.sensor.min_value) + ", " +
-                      FormatValue(options_.sensor.max_value) + "]"
-                : " back inside its physical range at " + FormatWithUnit(context.value, unit);
+      if (raise) {
+        add({" ", value_text, " is outside its physical range [",
+             FormatValue(options_.sensor.min_value), ", ", FormatValue(options_.sensor.max_value),
+             "]"});
+      } else {
+        add({" back inside its physical range at ", value_text});
+      }
       break;
-    case AlarmCondition::kFlatline:
+    case AlarmCondition::kFlatline: {
       alert.detector = Detector::kFlatline;
       alert.statistic = raise ? static_cast<double>(options_.sensor.flatline_samples) : 0.0;
       alert.threshold = static_cast<double>(options_.sensor.flatline_samples);
-      message += raise ? " stuck at " + FormatWithUnit(context.value, unit) + " for " +
-                             std::to_string(options_.sensor.flatline_samples) +
-                             " samples (sensor or transmitter fault?)"
-                       : " moving again at " + FormatWithUnit(context.value, unit) + " after " +
-                             FormatDuration(lasted_s);
+      const std::string samples = std::to_string(options_.sensor.flatline_samples);
+      if (raise) {
+        add({" stuck at ", value_text, " for ", samples,
+             " samples (sensor or transmitter fault?)"});
+      } else {
+        add({" moving again at ", value_text, " after ", FormatDuration(lasted_s)});
+      }
       break;
+    }
     case AlarmCondition::kGap:
       alert.detector = Detector::kGap;
       alert.statistic = ToSeconds(context.time - last_time_);
       alert.threshold = options_.sensor.gap_periods * period_.period_s();
-      message += raise ? ": no sample for " + FormatDuration(alert.statistic) +
-                             " (expected every " + FormatDuration(period_.period_s()) + ")"
-                       : " samples again after a gap of " + FormatDuration(lasted_s);
+      if (raise) {
+        add({": no sample for ", FormatDuration(alert.statistic), " (expected every ",
+             FormatDuration(period_.period_s()), ")"});
+      } else {
+        add({" samples again after a gap of ", FormatDuration(lasted_s)});
+      }
       break;
     case AlarmCondition::kAnomaly:
       break;
