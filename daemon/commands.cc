@@ -6,6 +6,7 @@ std::vector<Command> AddCommands(CLI::App& app) {
   std::vector<Command> commands;
   // One line per subcommand, e.g. commands.push_back(AddReplayCommand(app));
   commands.push_back(AddCheckConfigCommand(app));
+  commands.push_back(AddReplayCommand(app));
   return commands;
 }
 

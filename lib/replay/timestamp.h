@@ -29,9 +29,10 @@ namespace nightjar::replay {
 core::Result<core::TimestampUs> ParseTimestamp(std::string_view text);
 
 // Formats `t` as YYYY-MM-DDTHH:MM:SSZ, with ".ffffff" (always six digits) before the Z
-// when t is not a whole second. ParseTimestamp(FormatTimestamp(t)) == t for every t in
+// when t is not a whole second (core::FormatUtcTimestamp with kMicrosIfAny, see
+// core/timestamp_format.h). ParseTimestamp(FormatTimestamp(t)) == t for every t in
 // years 0000..9999. Every TimestampUs formats without overflow; outside those years the
-// year is written as printf's %04 would (e.g. -0001, 12345), which ParseTimestamp rejects.
+// year is written as printf's %04lld would (e.g. -001, 12345), which ParseTimestamp rejects.
 std::string FormatTimestamp(core::TimestampUs t);
 
 }  // namespace nightjar::replay
