@@ -169,9 +169,10 @@ int RunDaemon(const RunFlags& flags) {
         spdlog::error("reload refused: {} has errors; the running config stays", flags.config);
       } else {
         rt.Reload(next);
-        spdlog::info("reloaded {}: channels with unchanged options keep what they learnt; "
-                     "mqtt: and daemon: changes apply at the next start",
-                     flags.config);
+        spdlog::info(
+            "reloaded {}: channels with unchanged options keep what they learnt; "
+            "mqtt: and daemon: changes apply at the next start",
+            flags.config);
       }
     }
     rt.Tick();

@@ -54,8 +54,8 @@ ParsedCommand ParseOperatorCommand(std::string_view payload) {
     return out;
   }
   if (!doc.is_object()) {
-    out.status = core::Status::InvalidArgument(std::string("expected a JSON object, got ") +
-                                               JsonKind(doc));
+    out.status =
+        core::Status::InvalidArgument(std::string("expected a JSON object, got ") + JsonKind(doc));
     return out;
   }
   // request_id first, so that every later error can still be matched to its request.
@@ -69,8 +69,9 @@ ParsedCommand ParseOperatorCommand(std::string_view payload) {
   for (const auto& [key, value] : doc.items()) {
     if (key != "action" && key != "channel" && key != "condition" && key != "duration_s" &&
         key != "request_id") {
-      out.status = FieldError(key, "unknown field (expected action, channel, condition, "
-                                   "duration_s, request_id)");
+      out.status = FieldError(key,
+                              "unknown field (expected action, channel, condition, "
+                              "duration_s, request_id)");
       return out;
     }
   }
@@ -87,9 +88,9 @@ ParsedCommand ParseOperatorCommand(std::string_view payload) {
   } else if (action_text == "unshelve") {
     out.command.action = CommandAction::kUnshelve;
   } else {
-    out.status = FieldError(
-        "action", "expected one of acknowledge, shelve, unshelve, got " +
-                      (action->is_string() ? "'" + action_text + "'" : std::string(JsonKind(*action))));
+    out.status = FieldError("action", "expected one of acknowledge, shelve, unshelve, got " +
+                                          (action->is_string() ? "'" + action_text + "'"
+                                                               : std::string(JsonKind(*action))));
     return out;
   }
   out.has_action = true;
@@ -110,10 +111,10 @@ ParsedCommand ParseOperatorCommand(std::string_view payload) {
   if (const auto condition = doc.find("condition"); condition != doc.end()) {
     if (!condition->is_string() ||
         !core::ParseAlarmCondition(condition->get<std::string>(), &out.command.condition)) {
-      out.status = FieldError("condition",
-                              "expected one of anomaly, not_finite, range, flatline, gap, got " +
-                                  (condition->is_string() ? "'" + condition->get<std::string>() + "'"
-                                                          : std::string(JsonKind(*condition))));
+      out.status = FieldError(
+          "condition", "expected one of anomaly, not_finite, range, flatline, gap, got " +
+                           (condition->is_string() ? "'" + condition->get<std::string>() + "'"
+                                                   : std::string(JsonKind(*condition))));
       return out;
     }
   }
@@ -126,8 +127,8 @@ ParsedCommand ParseOperatorCommand(std::string_view payload) {
       return out;
     }
     if (!duration->is_number()) {
-      out.status = FieldError("duration_s", std::string("expected a number of seconds, got ") +
-                                                JsonKind(*duration));
+      out.status = FieldError(
+          "duration_s", std::string("expected a number of seconds, got ") + JsonKind(*duration));
       return out;
     }
     out.command.duration_s = duration->get<double>();

@@ -19,8 +19,7 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
       },
       [](std::string_view, const core::Status& problem, std::uint64_t suppressed) {
         if (suppressed > 0) {
-          spdlog::warn("{} ({} more like it since the last report)", problem.message(),
-                       suppressed);
+          spdlog::warn("{} ({} more like it since the last report)", problem.message(), suppressed);
         } else {
           spdlog::warn("{}", problem.message());
         }
@@ -34,8 +33,9 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
     runtime->workers_.push_back(std::make_unique<EngineWorker>(
         i, config, topics, self->options_.queue_capacity, bus, self->clock_));
   }
-  bus.SetMessageHandler(
-      [self](std::string_view topic, std::string_view payload) { self->OnMessage(topic, payload); });
+  bus.SetMessageHandler([self](std::string_view topic, std::string_view payload) {
+    self->OnMessage(topic, payload);
+  });
   bus.SetConnectionHandler([self](bool connected) {
     if (connected) {
       spdlog::info("connected to broker {}:{}", self->options_.client.host,
@@ -85,7 +85,17 @@ void Runtime::OnMessage(std::string_view topic, std::string_view payload) {
     OnCommand(payload);
     return;
   }
+  if (IsOwnTopic(topic)) return;  // a broad subscription must not feed our output back in
   intake_->OnMessage(topic, payload);
+}
+
+bool Runtime::IsOwnTopic(std::string_view topic) const {
+  const auto under = [topic](std::string_view prefix) {
+    return topic.size() > prefix.size() && topic.substr(0, prefix.size()) == prefix &&
+           topic[prefix.size()] == '/';
+  };
+  return topic == options_.status_topic || topic == options_.reply_topic ||
+         under(options_.alert_prefix) || under(options_.state_prefix);
 }
 
 void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double value) {
@@ -98,9 +108,10 @@ void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double 
     d = drops_.Record(channel, clock_());
   }
   if (d.log_now) {
-    spdlog::warn("worker queue full: dropped a sample of {} ({} dropped on it so far, {} since "
-                 "the last report)",
-                 channel, d.total, d.suppressed + 1);
+    spdlog::warn(
+        "worker queue full: dropped a sample of {} ({} dropped on it so far, {} since "
+        "the last report)",
+        channel, d.total, d.suppressed + 1);
   }
 }
 
@@ -109,9 +120,8 @@ void Runtime::OnCommand(std::string_view payload) {
   ParsedCommand parsed = ParseOperatorCommand(payload);
   if (!parsed.status.ok()) {
     spdlog::warn("topic {}: command refused: {}", options_.command_topic, parsed.status.message());
-    const core::Status s = bus_.Publish(options_.reply_topic,
-                                        CommandReplyJson(parsed, core::Status::Ok()), options_.qos,
-                                        false);
+    const core::Status s = bus_.Publish(
+        options_.reply_topic, CommandReplyJson(parsed, core::Status::Ok()), options_.qos, false);
     if (!s.ok()) spdlog::warn("reply not published: {}", s.message());
     return;
   }
@@ -177,9 +187,9 @@ bool Runtime::ready() const {
 }
 
 void Runtime::PublishStatus(std::string_view state, std::string_view reason) {
-  const core::Status s = bus_.Publish(
-      options_.status_topic, StatusJson(state, reason, started_at_, clock_(), counters()),
-      options_.qos, true);
+  const core::Status s = bus_.Publish(options_.status_topic,
+                                      StatusJson(state, reason, started_at_, clock_(), counters()),
+                                      options_.qos, true);
   if (!s.ok()) spdlog::debug("status not published: {}", s.message());
 }
 

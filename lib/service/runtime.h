@@ -4,7 +4,8 @@
 // sample topic it maps and parses the payload (SampleIntake) and offers the sample to the
 // worker owning the channel (ShardFor: a stable hash of the name), never blocking: a full
 // queue drops the sample, counted per channel and logged rate-limited. A message on the
-// command topic is parsed and validated there; an invalid command is answered at once on
+// command topic is parsed and validated there; messages on the daemon's own output topics
+// (a broad subscription can cover them) are ignored; an invalid command is answered at once on
 // the reply topic, a valid one goes to the owning worker's queue, which applies it and
 // replies. N EngineWorker threads each own an Engine shard (`workers: 1` runs the same
 // code). The caller's thread calls Tick() periodically (every 100 ms in nightjar run): it
@@ -79,6 +80,8 @@ class Runtime {
   void OnMessage(std::string_view topic, std::string_view payload);
   void OnSample(std::string_view channel, core::TimestampUs time, double value);
   void OnCommand(std::string_view payload);
+  // Whether `topic` is one the daemon publishes (status, replies, alerts, state).
+  bool IsOwnTopic(std::string_view topic) const;
   void PublishStatus(std::string_view state, std::string_view reason);
 
   const ServiceOptions options_;

@@ -14,13 +14,15 @@ namespace {
 
 std::string Where(std::string_view source, int line, int column, const std::string& key) {
   std::string out(source);
-  if (line > 0) out.append(":").append(std::to_string(line)).append(":").append(std::to_string(column));
+  if (line > 0)
+    out.append(":").append(std::to_string(line)).append(":").append(std::to_string(column));
   return out.append(": ").append(key).append(": ");
 }
 
 mqtt::PayloadFormat FormatOf(const config::SubscriptionConfig& s) {
   mqtt::PayloadFormat format;
-  format.encoding = s.payload == "json" ? mqtt::PayloadEncoding::kJson : mqtt::PayloadEncoding::kNumber;
+  format.encoding =
+      s.payload == "json" ? mqtt::PayloadEncoding::kJson : mqtt::PayloadEncoding::kNumber;
   if (format.encoding == mqtt::PayloadEncoding::kJson) {
     format.value_field = s.value_field;
     format.time_field = s.time_field;
@@ -34,8 +36,7 @@ mqtt::PayloadFormat FormatOf(const config::SubscriptionConfig& s) {
 // "'<text>': <what>", built by appending (GCC 12 warns falsely, -Wrestrict, on
 // "literal" + std::string).
 core::Status BadAddress(std::string_view text, std::string_view what) {
-  return core::Status::InvalidArgument(
-      std::string("'").append(text).append("': ").append(what));
+  return core::Status::InvalidArgument(std::string("'").append(text).append("': ").append(what));
 }
 
 }  // namespace
@@ -102,9 +103,8 @@ core::Result<ServiceOptions> BuildServiceOptions(const config::LoadedConfig& con
       o.client.password = password;
     }
   }
-  o.client.will = mqtt::MqttMessage{m.status_topic,
-                                    R"({"state":"offline","reason":"connection lost"})", m.qos,
-                                    true};
+  o.client.will = mqtt::MqttMessage{
+      m.status_topic, R"({"state":"offline","reason":"connection lost"})", m.qos, true};
   o.client.announce = mqtt::MqttMessage{m.status_topic, R"({"state":"online"})", m.qos, true};
   o.client.outbox_capacity = static_cast<std::size_t>(d.outbox_capacity);
   if (core::Status s = mqtt::ValidateClientOptions(o.client); !s.ok()) {

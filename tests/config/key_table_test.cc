@@ -279,7 +279,8 @@ TEST(SameChannelOptionsTest, DetectsAChangeInAnyKey) {
     if (const auto* p = std::get_if<core::Priority>(&v))
       other = *p == core::Priority::kHigh ? core::Priority::kLow : core::Priority::kHigh;
     if (const auto* f = std::get_if<core::Forecaster>(&v))
-      other = *f == core::Forecaster::kLstm ? core::Forecaster::kLastValue : core::Forecaster::kLstm;
+      other =
+          *f == core::Forecaster::kLstm ? core::Forecaster::kLastValue : core::Forecaster::kLstm;
     if (std::holds_alternative<std::vector<core::EventTemplate>>(v)) {
       core::EventTemplate event;
       event.name = "pump_start";
