@@ -68,13 +68,13 @@ void EngineWorker::Run() {
       }
     }
     for (const SampleItem& sample : samples) HandleSample(sample, now);
-    if (now >= last_sweep_ + kSweepPeriodUs || now < last_sweep_) Sweep(now);
+    if (now >= last_sweep_ + kSweepPeriodUs || now < last_sweep_) Sweep(now, false);
   }
   // Whatever arrived between the stop request and now (the intake is closed by then).
   queue_.PopAll(std::chrono::milliseconds(0), samples, controls);
   const core::TimestampUs now = clock_();
   for (const SampleItem& sample : samples) HandleSample(sample, now);
-  Sweep(now);
+  Sweep(now, /*flush=*/true);
 }
 
 core::TimestampUs EngineWorker::EngineNow(core::TimestampUs wall) const {
@@ -203,12 +203,12 @@ void EngineWorker::MaybePublishState(core::ChannelId id, core::TimestampUs now, 
   view.dirty = false;
 }
 
-void EngineWorker::Sweep(core::TimestampUs now) {
+void EngineWorker::Sweep(core::TimestampUs now, bool flush) {
   last_sweep_ = now;
   engine_.AdvanceClock(EngineNow(now), alerts_);
   PublishAlerts();
   for (core::ChannelId id = 0; id < engine_.channel_count(); ++id) {
-    MaybePublishState(id, now, false);
+    MaybePublishState(id, now, flush && views_[id].dirty);
   }
 }
 

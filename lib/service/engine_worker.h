@@ -23,7 +23,8 @@
 // ones (its open alarms end without a clear; its state goes back to learning). New
 // channels get the new config.
 //
-// Stop: StopAndJoin() lets the thread finish everything already queued, then joins it.
+// Stop: StopAndJoin() lets the thread finish everything already queued, publish the
+// latest state of every channel that changed since its last state message, then joins it.
 //
 // Thread-safety: Offer, PushControl and counters() from any thread; Start and
 // StopAndJoin from the owner's thread. The engine and per-channel bookkeeping are touched
@@ -116,7 +117,8 @@ class EngineWorker {
   void HandleReload(const ReloadItem& item);
   void PublishAlerts();
   void MaybePublishState(core::ChannelId id, core::TimestampUs now, bool force);
-  void Sweep(core::TimestampUs now);
+  // Gap check and state that is due; `flush` publishes every changed state (on stop).
+  void Sweep(core::TimestampUs now, bool flush);
   core::TimestampUs EngineNow(core::TimestampUs wall) const;
 
   const int index_;
