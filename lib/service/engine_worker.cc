@@ -205,7 +205,9 @@ void EngineWorker::MaybePublishState(core::ChannelId id, core::TimestampUs now, 
 
 void EngineWorker::Sweep(core::TimestampUs now, bool flush) {
   last_sweep_ = now;
-  engine_.AdvanceClock(EngineNow(now), alerts_);
+  // Not before the first sample: the wall clock would set the engine's clock ahead of a
+  // time base that runs behind it, and no gap could be seen after that.
+  if (has_sample_) engine_.AdvanceClock(EngineNow(now), alerts_);
   PublishAlerts();
   for (core::ChannelId id = 0; id < engine_.channel_count(); ++id) {
     MaybePublishState(id, now, flush && views_[id].dirty);

@@ -290,6 +290,68 @@ TEST(RunDaemonTest, SighupKeepsTheOldConfigWhenBrokenAndAppliesAGoodOne) {
   EXPECT_EQ(last["reload_failures"], 1);
 }
 
+// Alerts raised while the broker is down wait in the client's outbox and reach a
+// subscriber after the broker is back, none lost. The alert is a gap alarm: with
+// gap_periods 3 on a 1 s channel, 3 s of silence (the broker is gone) raises it while
+// disconnected. The subscriber holds a persistent session (clean session off, QoS 1) on a
+// broker with persistence on, so the broker keeps what arrives for it while it is away
+// (MQTT 3.1.1 section 3.1.2.4).
+TEST(RunDaemonTest, AlertsRaisedWhileTheBrokerIsDownArriveAfterItReturns) {
+  TempDir store;
+  const std::string persistence = "persistence true\npersistence_location " + store.path() + "/\n";
+  core::Result<std::unique_ptr<TestBroker>> started_broker = TestBroker::Start(persistence);
+  ASSERT_TRUE(started_broker.ok()) << started_broker.status().message();
+  TestBroker& broker = **started_broker;
+  const std::string port = std::to_string(broker.port());
+  const std::vector<std::string> witness_argv = {
+      "stdbuf", "-oL",       "mosquitto_sub",
+      "-h",     "127.0.0.1", "-p",
+      port,     "-i",        "cw2-outbox-witness",
+      "-c",     "-q",        "1",
+      "-d",     "-t",        std::string(kAlertPrefix) + "/#",
+      "-F",     "MSG %t %p"};
+  const std::string first_out = broker.dir().File("witness-first.out");
+  {
+    auto first = ChildProcess::Spawn(witness_argv, first_out);
+    ASSERT_TRUE(first.ok());
+    ASSERT_TRUE(
+        WaitFor([&] { return ReadFile(first_out).find("Subscribed") != std::string::npos; }));
+    (*first)->Terminate();  // the session stays at the broker
+  }
+  auto started = DaemonProcess::Start(
+      broker, TestConfig("", "  - match: \"cw2.**\"\n    sensor: { gap_periods: 3 }\n"));
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+  ASSERT_TRUE(PublishLines(broker, kFlowTopic, FlowLines(0, 300)).ok());
+  ASSERT_TRUE(StateIs(broker, kFlowState, "armed"));
+
+  broker.Stop();
+  ASSERT_TRUE(daemon.WaitLog("lost; reconnecting")) << daemon.log();
+  ASSERT_TRUE(daemon.WaitLog("alert raise cw2.pump_a.flow sensor gap")) << daemon.log();
+  ASSERT_TRUE(broker.Restart(persistence).ok());
+  const std::string second_out = broker.dir().File("witness-second.out");
+  auto second = ChildProcess::Spawn(witness_argv, second_out);
+  ASSERT_TRUE(second.ok());
+  ASSERT_TRUE(WaitFor(
+      [&] { return ReadFile(second_out).find("\"detector\":\"gap\"") != std::string::npos; },
+      milliseconds(20000)))
+      << ReadFile(second_out) << daemon.log();
+  EXPECT_EQ(daemon.CountInLog("connected to broker"), 2) << daemon.log();
+  // Every alert the daemon logged reached the subscriber, once.
+  ASSERT_TRUE(WaitFor(
+      [&] {
+        const std::string text = ReadFile(second_out);
+        int n = 0;
+        for (std::size_t at = text.find("MSG "); at != std::string::npos;
+             at = text.find("MSG ", at + 1))
+          ++n;
+        return n == daemon.CountInLog("info alert ");
+      },
+      milliseconds(5000)))
+      << ReadFile(second_out) << daemon.log();
+  StopCleanly(daemon);
+}
+
 TEST(RunDaemonTest, ConfigErrorsExitOneNamingFileLineAndKey) {
   TempDir dir;
   const std::string config = dir.File("bad.yaml");
