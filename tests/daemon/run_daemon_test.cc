@@ -8,7 +8,10 @@
 // and clear once it is over (common practice: a 20-sigma shift is far beyond every chart
 // limit the false-alarm budget gives).
 #include <gtest/gtest.h>
+#include <sys/socket.h>
+#include <sys/un.h>
 
+#include <algorithm>
 #include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
@@ -350,6 +353,50 @@ TEST(RunDaemonTest, AlertsRaisedWhileTheBrokerIsDownArriveAfterItReturns) {
       milliseconds(5000)))
       << ReadFile(second_out) << daemon.log();
   StopCleanly(daemon);
+}
+
+// systemd notifications, read from a NOTIFY_SOCKET of our own (sd_notify(3) sends one
+// datagram per call to the AF_UNIX socket that variable names; WATCHDOG_USEC asks for
+// keep-alives, sd_watchdog_enabled(3)): READY=1 once connected and subscribed, WATCHDOG=1
+// at least every half interval, a STATUS= line, STOPPING=1 on SIGTERM.
+TEST(RunDaemonTest, TellsSystemdReadyWatchdogStatusAndStopping) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  const std::string path = broker->dir().File("notify.sock");
+  const int fd = ::socket(AF_UNIX, SOCK_DGRAM | SOCK_NONBLOCK, 0);
+  ASSERT_GE(fd, 0);
+  sockaddr_un addr{};
+  addr.sun_family = AF_UNIX;
+  ASSERT_LT(path.size(), sizeof(addr.sun_path));
+  std::copy(path.begin(), path.end(), addr.sun_path);
+  ASSERT_EQ(::bind(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)), 0);
+  ::setenv("NOTIFY_SOCKET", path.c_str(), 1);
+  ::setenv("WATCHDOG_USEC", "400000", 1);
+  auto started = DaemonProcess::Start(*broker, TestConfig());
+  ::unsetenv("NOTIFY_SOCKET");
+  ::unsetenv("WATCHDOG_USEC");
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+
+  std::vector<std::string> messages;
+  const auto count = [&](const std::string& prefix) {
+    char buffer[4096];
+    for (;;) {
+      const ssize_t n = ::recv(fd, buffer, sizeof(buffer), 0);
+      if (n <= 0) break;
+      messages.emplace_back(buffer, static_cast<std::size_t>(n));
+    }
+    int k = 0;
+    for (const std::string& m : messages) k += m.rfind(prefix, 0) == 0 ? 1 : 0;
+    return k;
+  };
+  EXPECT_TRUE(WaitFor([&] { return count("READY=1") == 1; }));
+  EXPECT_TRUE(WaitFor([&] { return count("WATCHDOG=1") >= 3; }));
+  EXPECT_TRUE(WaitFor([&] { return count("STATUS=") >= 1; }));
+  StopCleanly(daemon);
+  EXPECT_TRUE(WaitFor([&] { return count("STOPPING=1") == 1; }, milliseconds(2000)));
+  EXPECT_EQ(count("READY=1"), 1);
+  ::close(fd);
 }
 
 TEST(RunDaemonTest, ConfigErrorsExitOneNamingFileLineAndKey) {
