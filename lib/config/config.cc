@@ -14,6 +14,7 @@
 #include <map>
 #include <memory>
 #include <set>
+#include <span>
 #include <sstream>
 #include <string>
 #include <system_error>
@@ -298,6 +299,7 @@ class Loader {
       Error(At(e.mark, {1, 1}), "", e.msg.empty() ? std::string(e.what()) : e.msg);
     }
     Validate();
+    ValidateService();
     std::stable_sort(errors_.begin(), errors_.end(),
                      [](const ConfigError& a, const ConfigError& b) {
                        return std::tie(a.line, a.column) < std::tie(b.line, b.column);
@@ -361,18 +363,184 @@ class Loader {
       } else if (name == "channels") {
         LoadChannels(entry.second, at);
       } else if (name == "mqtt" || name == "daemon") {
-        Error(at, name, "section not supported yet (reserved for the MQTT daemon)");
+        LoadServiceSection(entry.second, name, at);
       } else {
         std::string message = "unknown top-level section";
-        const std::string hint = ClosestCandidate(name, {"engine", "defaults", "channels"});
+        const std::string hint =
+            ClosestCandidate(name, {"engine", "defaults", "channels", "mqtt", "daemon"});
         if (!hint.empty()) {
           message += "; did you mean '" + hint + "'?";
         } else if (FindKey(name) != nullptr || IsSection(name)) {
           message += "; channel keys go under 'defaults:' or a 'channels:' entry";
         } else {
-          message += " (expected engine, defaults or channels)";
+          message += " (expected engine, defaults, channels, mqtt or daemon)";
         }
         Error(at, name, message);
+      }
+    }
+  }
+
+  // `mqtt:` or `daemon:`: scalar keys of ServiceKeys(), and mqtt.subscriptions.
+  void LoadServiceSection(const YAML::Node& node, const std::string& section, Location key_at) {
+    if (node.IsNull()) return;
+    if (!node.IsMap()) {
+      Error(At(node.Mark(), key_at), section,
+            std::string("expected a mapping of keys, got ") + NodeKind(node));
+      return;
+    }
+    std::vector<std::string> names;
+    for (const ServiceKeySpec& key : ServiceKeys()) {
+      if (key.section() == section) names.emplace_back(key.name());
+    }
+    if (section == "mqtt") names.emplace_back("subscriptions");
+    std::map<std::string, int> seen;
+    for (const auto& entry : node) {
+      std::string name;
+      if (!KeyName(entry.first, section, name)) continue;
+      const Location at = At(entry.first.Mark());
+      const std::string path = section + "." + name;
+      if (Duplicate(seen, name, at, path)) continue;
+      const YAML::Node& value = entry.second;
+      const Location value_at = value.IsNull() ? at : At(value.Mark(), at);
+      if (path == "mqtt.subscriptions") {
+        LoadSubscriptions(value, value_at);
+        continue;
+      }
+      const ServiceKeySpec* key = FindServiceKey(path);
+      if (key == nullptr) {
+        const std::string hint = ClosestCandidate(name, names);
+        Error(at, path,
+              hint.empty() ? "unknown key in '" + section + ":'"
+                           : "unknown key; did you mean '" + hint + "'?");
+        continue;
+      }
+      std::string error;
+      std::optional<Value> parsed = ParseScalarValue(key->type(), key->bounds, value, error);
+      if (parsed && !key->choices.empty()) {
+        parsed = CheckChoice(std::get<std::string>(*parsed), key->choices, error);
+      }
+      if (!parsed) {
+        Error(value_at, path, error);
+        continue;
+      }
+      SetServiceValue(*key, *parsed, config_.service);
+      service_locations_[key->path] = value_at;
+    }
+  }
+
+  static std::optional<Value> CheckChoice(const std::string& text,
+                                          std::span<const std::string_view> choices,
+                                          std::string& error) {
+    std::string list;
+    for (const std::string_view choice : choices) {
+      if (text == choice) return Value(text);
+      list.append(list.empty() ? "" : ", ").append(choice);
+    }
+    error = "expected one of " + list + ", got " + Quote(text);
+    return std::nullopt;
+  }
+
+  void LoadSubscriptions(const YAML::Node& node, Location at) {
+    const std::string path = "mqtt.subscriptions";
+    if (node.IsNull()) return;
+    if (!node.IsSequence()) {
+      Error(
+          at, path,
+          std::string("expected a list of {topic, channel, ...} mappings, got ") + NodeKind(node));
+      return;
+    }
+    std::size_t index = 0;
+    for (const auto& item : node) {
+      const std::string item_path = path + "[" + std::to_string(index++) + "]";
+      const Location item_at = At(item.Mark(), at);
+      if (!item.IsMap()) {
+        Error(item_at, item_path,
+              std::string("expected a mapping with topic: and channel:, got ") + NodeKind(item));
+        continue;
+      }
+      SubscriptionConfig entry;
+      entry.line = item_at.line;
+      entry.column = item_at.column;
+      std::map<std::string, int> seen;
+      std::map<std::string, Location> where;
+      for (const auto& kv : item) {
+        std::string name;
+        if (!KeyName(kv.first, item_path, name)) continue;
+        const Location key_at = At(kv.first.Mark());
+        const std::string key_path = item_path + "." + name;
+        if (Duplicate(seen, name, key_at, key_path)) continue;
+        const SubscriptionKeySpec* key = FindSubscriptionKey(name);
+        if (key == nullptr) {
+          std::vector<std::string> names;
+          for (const SubscriptionKeySpec& k : SubscriptionKeys()) names.emplace_back(k.name);
+          const std::string hint = ClosestCandidate(name, names);
+          Error(key_at, key_path,
+                hint.empty() ? "unknown key of a subscription"
+                             : "unknown key; did you mean '" + hint + "'?");
+          continue;
+        }
+        const YAML::Node& value = kv.second;
+        const Location value_at = value.IsNull() ? key_at : At(value.Mark(), key_at);
+        where[name] = value_at;
+        std::string error;
+        std::optional<Value> parsed = ParseScalarValue(ValueType::kString, {}, value, error);
+        if (parsed && !key->choices.empty()) {
+          parsed = CheckChoice(std::get<std::string>(*parsed), key->choices, error);
+        }
+        if (!parsed) {
+          Error(value_at, key_path, error);
+          continue;
+        }
+        *key->field(entry) = std::get<std::string>(*parsed);
+      }
+      for (const SubscriptionKeySpec& key : SubscriptionKeys()) {
+        const std::string name(key.name);
+        if (key.required && seen.count(name) == 0) {
+          Error(item_at, item_path + "." + name, "missing: every subscription needs it");
+        } else if (key.required && key.field(entry)->empty() && where.count(name) != 0) {
+          Error(where[name], item_path + "." + name, "must not be empty");
+        }
+      }
+      if (entry.payload == "plain") {
+        for (const char* json_only : {"value_field", "time_field", "time_unit"}) {
+          if (where.count(json_only) != 0) {
+            Error(where[json_only], item_path + "." + json_only,
+                  "only for payload: json (this subscription's payload is plain)");
+          }
+        }
+      } else if (where.count("value_field") != 0 && entry.value_field.empty()) {
+        Error(where["value_field"], item_path + ".value_field", "must not be empty");
+      }
+      config_.service.mqtt.subscriptions.push_back(std::move(entry));
+    }
+  }
+
+  // Cross-key rules of mqtt: and daemon:, reported at the later of the keys involved.
+  void ValidateService() {
+    const MqttConfig& mqtt = config_.service.mqtt;
+    const auto located = [this](std::string_view path) {
+      const auto it = service_locations_.find(path);
+      return it == service_locations_.end() ? Location{1, 1} : it->second;
+    };
+    if (!mqtt.password_file.empty() && mqtt.username.empty()) {
+      Error(located("mqtt.password_file"), "mqtt.password_file", "needs mqtt.username");
+    }
+    if (!mqtt.clean_session && mqtt.protocol == "5") {
+      Error(located("mqtt.clean_session"), "mqtt.clean_session",
+            "false needs protocol 3.1.1 (MQTT 5 sessions are not supported)");
+    }
+    if (!mqtt.clean_session && mqtt.client_id.empty()) {
+      Error(located("mqtt.clean_session"), "mqtt.clean_session", "false needs a client_id");
+    }
+    for (const std::string_view key :
+         {"mqtt.alert_prefix", "mqtt.state_prefix", "mqtt.status_topic", "mqtt.command_topic",
+          "mqtt.reply_topic"}) {
+      std::string text = std::get<std::string>(std::visit(
+          [](auto* f) { return Value(*f); }, FindServiceKey(key)->field(config_.service)));
+      if (text.empty() || text.find_first_of("+#") != std::string::npos || text.front() == '/' ||
+          text.back() == '/') {
+        Error(located(key), std::string(key),
+              "must be an MQTT topic: not empty, no + or #, no leading or trailing /");
       }
     }
   }
@@ -786,6 +954,7 @@ class Loader {
   std::vector<KeySetting> defaults_settings_;
   Location defaults_location_{1, 1};
   std::vector<ConfigError> errors_;
+  std::map<std::string_view, Location> service_locations_;  // value positions of mqtt/daemon keys
 };
 
 }  // namespace

@@ -15,8 +15,8 @@
 // nested maps (`sensor: { min_value: 0 }`); dotted keys ("sensor.min_value: 0") are not
 // accepted. `events:` is a list of shape templates ({name, shape: [...], band, max_distance,
 // min_spread_ratio}); a block that sets it replaces the whole list (lists are not merged).
-// `mqtt:` and `daemon:` are reserved for the daemon and rejected as "not supported yet";
-// any other top-level key is an error.
+// `mqtt:` and `daemon:` configure `nightjar run` (service_config.h); replay and tune ignore
+// them. Any other top-level key is an error.
 //
 // Loading collects every error in one pass: YAML syntax, unknown keys (with a "did you
 // mean" suggestion), wrong types, out-of-bounds values, bad globs, duplicate keys, and then
@@ -35,6 +35,7 @@
 
 #include "config/glob.h"
 #include "config/key_table.h"
+#include "config/service_config.h"
 #include "core/engine_options.h"
 
 namespace nightjar::config {
@@ -74,6 +75,8 @@ struct LoadedConfig {
   // engine.defaults holds the built-in defaults with `defaults:` applied.
   core::EngineOptions engine;
   std::vector<ChannelOverride> overrides;
+  // The mqtt: and daemon: sections, built-in defaults where not set.
+  ServiceConfig service;
 
   // engine.defaults, then every override whose glob matches `channel`, in order.
   core::ChannelOptions Resolve(std::string_view channel) const;

@@ -258,6 +258,15 @@ void SetValue(const KeySpec& key, const Value& value, core::ChannelOptions& opti
       ref);
 }
 
+bool SameChannelOptions(const core::ChannelOptions& a, const core::ChannelOptions& b) {
+  for (const KeySpec& key : kKeys) {
+    // FormatValue is exact (round-trip doubles) and covers the event lists, which have
+    // no operator==.
+    if (FormatValue(GetValue(key, a)) != FormatValue(GetValue(key, b))) return false;
+  }
+  return true;
+}
+
 Value DefaultValue(const KeySpec& key) { return GetValue(key, core::ChannelOptions{}); }
 
 std::string FormatValue(const Value& value) {

@@ -102,6 +102,10 @@ const KeySpec* FindKey(std::string_view path);
 Value GetValue(const KeySpec& key, const core::ChannelOptions& options);
 void SetValue(const KeySpec& key, const Value& value, core::ChannelOptions& options);
 
+// Whether every key has the same value in `a` and `b` (a config reload keeps a channel's
+// learnt state exactly when this holds for its old and new options).
+bool SameChannelOptions(const core::ChannelOptions& a, const core::ChannelOptions& b);
+
 // The key's value in a default-constructed core::ChannelOptions.
 Value DefaultValue(const KeySpec& key);
 

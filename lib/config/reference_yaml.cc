@@ -3,6 +3,7 @@
 #include <string>
 
 #include "config/config.h"
+#include "config/service_config.h"
 
 namespace nightjar::config {
 namespace {
@@ -35,6 +36,42 @@ void AppendEventKeys(std::string& out) {
     if (!key.unit.empty()) out.append("[").append(key.unit).append("] ");
     out.append(key.doc);
     out.append(RangeText(key.type(), key.bounds)).append("\n");
+  }
+}
+
+// "[unit] doc; range" or "doc; one of a, b" for a key of mqtt: or daemon:.
+std::string ServiceKeyComment(const ServiceKeySpec& key) {
+  std::string comment;
+  if (!key.unit.empty()) comment.append("[").append(key.unit).append("] ");
+  comment += key.doc;
+  if (!key.choices.empty()) {
+    comment += "; one of";
+    for (std::size_t i = 0; i < key.choices.size(); ++i) {
+      comment.append(i == 0 ? " " : ", ").append(key.choices[i]);
+    }
+  }
+  return comment.append(RangeText(key.type(), key.bounds));
+}
+
+void AppendServiceSection(std::string_view section, std::string& out) {
+  out.append(section).append(":\n");
+  for (const ServiceKeySpec& key : ServiceKeys()) {
+    if (key.section() != section) continue;
+    out.append("  ")
+        .append(key.name())
+        .append(": ")
+        .append(FormatValue(DefaultServiceValue(key)))
+        .append("  # ")
+        .append(ServiceKeyComment(key))
+        .append("\n");
+  }
+  if (section != "mqtt") return;
+  out.append("  subscriptions: []  # where samples come from; each entry:\n");
+  for (const SubscriptionKeySpec& key : SubscriptionKeys()) {
+    out.append("  #   ").append(key.name).append(": ");
+    out.append(key.required ? std::string("(required)")
+                            : FormatValue(DefaultSubscriptionValue(key)));
+    out.append("  # ").append(key.doc).append("\n");
   }
 }
 
@@ -72,7 +109,9 @@ std::string RenderReferenceYaml() {
       "#   - match: \"cw2.pump_a.*\"   # * one level, ** any levels, ? one character\n"
       "#     unit: \"m3/h\"            # then any keys of defaults:\n"
       "channels: []\n"
-      "# mqtt: and daemon: are reserved for the MQTT daemon (not supported yet).\n";
+      "# nightjar run only: the broker, topics and runtime.\n";
+  AppendServiceSection("mqtt", out);
+  AppendServiceSection("daemon", out);
   return out;
 }
 

@@ -44,8 +44,27 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
   const auto id = static_cast<ChannelId>(channels_.size());
   channels_.push_back(std::make_unique<ChannelPipeline>(std::string(name), options,
                                                         ChannelSeed(options_.seed, name)));
+  options_of_.push_back(options);
   ids_.emplace(std::string(name), id);
   return id;
+}
+
+void Engine::Reconfigure(EngineOptions options, ChannelOptionsResolver resolver) {
+  options_ = std::move(options);
+  resolver_ = std::move(resolver);
+}
+
+Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options) {
+  if (channel >= channels_.size()) return Status::NotFound("no channel with that id");
+  const std::string name = channels_[channel]->name();
+  if (Status valid = ValidateChannelOptions(options); !valid.ok()) {
+    return Status::InvalidArgument("channel '" + name + "': " + valid.message());
+  }
+  EnsureWorkspace(options);
+  channels_[channel] =
+      std::make_unique<ChannelPipeline>(name, options, ChannelSeed(options_.seed, name));
+  options_of_[channel] = options;
+  return Status::Ok();
 }
 
 void Engine::EnsureWorkspace(const ChannelOptions& options) {

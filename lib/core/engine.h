@@ -56,6 +56,16 @@ class Engine {
   // by the daemon every tick; Process() calls it when sample time moves on by a second.
   void AdvanceClock(TimestampUs now, std::vector<Alert>& out);
 
+  // For a config reload: channels created from now on get `options` and `resolver`;
+  // existing channels keep their pipelines (and what they learnt) until ResetChannel().
+  void Reconfigure(EngineOptions options, ChannelOptionsResolver resolver);
+  // Replaces the channel's pipeline by a new one with `options` (seeded as AddChannel
+  // would): it learns again from scratch. InvalidArgument naming the key when `options`
+  // are invalid; the channel is unchanged then.
+  Status ResetChannel(ChannelId channel, const ChannelOptions& options);
+  // The options the channel was created with.
+  const ChannelOptions& channel_options(ChannelId id) const { return options_of_[id]; }
+
   // ISA-18.2 operator actions on one alarm of one channel.
   Status Acknowledge(std::string_view channel, AlarmCondition condition, TimestampUs now);
   Status Shelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
@@ -83,6 +93,7 @@ class Engine {
   ChannelOptionsResolver resolver_;
   ThresholdDesigner designer_;
   std::vector<std::unique_ptr<ChannelPipeline>> channels_;
+  std::vector<ChannelOptions> options_of_;  // by ChannelId
   std::unordered_map<std::string, ChannelId, NameHash, std::equal_to<>> ids_;
   std::unique_ptr<LstmWorkspace<float>> workspace_;
   int workspace_inputs_ = 0;

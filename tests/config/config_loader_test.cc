@@ -376,15 +376,14 @@ TEST(LoadConfigTest, DuplicateKeysAreErrors) {
             "test.yaml:5:3: defaults.sensor: duplicate key (first set on line 4)");
 }
 
-TEST(LoadConfigTest, ReservedAndUnknownTopLevelSections) {
-  const LoadResult r = Load("mqtt:\n  host: x\ndaemon: {}\nlogging: {}\n");
-  ASSERT_EQ(r.errors.size(), 3u) << AllErrors(r);
+TEST(LoadConfigTest, UnknownTopLevelSections) {
+  const LoadResult r = Load("mqtt:\n  host: x\ndaemon: {}\nlogging: {}\nmqt: {}\n");
+  ASSERT_EQ(r.errors.size(), 2u) << AllErrors(r);
   EXPECT_EQ(r.errors[0].ToString(),
-            "test.yaml:1:1: mqtt: section not supported yet (reserved for the MQTT daemon)");
-  EXPECT_EQ(r.errors[1].key_path, "daemon");
-  EXPECT_EQ(r.errors[2].ToString(),
-            "test.yaml:4:1: logging: unknown top-level section (expected engine, defaults or "
-            "channels)");
+            "test.yaml:4:1: logging: unknown top-level section (expected engine, defaults, "
+            "channels, mqtt or daemon)");
+  EXPECT_EQ(r.errors[1].ToString(),
+            "test.yaml:5:1: mqt: unknown top-level section; did you mean 'mqtt'?");
   EXPECT_EQ(OnlyError(Load("- a\n- b\n")).message,
             "expected a mapping with engine:, defaults: and channels:, got a sequence");
 }
@@ -416,7 +415,7 @@ channels:
   - match: "a.**"
     sensor: { max_valeu: 1, flatline_samples: 1 }
     sensor_priority: urgent
-mqtt: {}
+mqtt: { keepalive: 5 }
 )");
   ASSERT_EQ(r.errors.size(), 7u) << AllErrors(r);
   std::vector<std::string> paths;
@@ -424,7 +423,7 @@ mqtt: {}
   EXPECT_EQ(paths, (std::vector<std::string>{
                        "engine.seed", "defaults.warmup_sample", "defaults.predictor.window",
                        "channels[0].sensor.max_valeu", "channels[0].sensor.flatline_samples",
-                       "channels[0].sensor_priority", "mqtt"}));
+                       "channels[0].sensor_priority", "mqtt.keepalive"}));
   for (std::size_t i = 1; i < r.errors.size(); ++i) {
     EXPECT_LE(r.errors[i - 1].line, r.errors[i].line);
   }

@@ -11,6 +11,7 @@
 #include <vector>
 
 #include "config/config.h"
+#include "config/service_config.h"
 
 namespace nightjar::config {
 namespace {
@@ -246,6 +247,53 @@ TEST(ExampleConfigTest, ListsEveryKeyWithItsDefaultAndUnit) {
     EXPECT_NE(FindKey(path), nullptr)
         << "config/nightjar.yaml:" << d.line << ": " << path << " is not a key";
   }
+}
+
+// Every key of mqtt: and daemon: is listed in its section as `# name: default  # [unit]`
+// (or set, naming its default), and every subscription key in the commented entry.
+TEST(ExampleConfigTest, ListsEveryServiceKeyWithItsDefaultAndUnit) {
+  static const std::regex key_line(R"( {2}(# )?([a-z_]+): (.*?)(?:  +# (.*))?)");
+  std::map<std::string, std::pair<std::string, std::string>> found;  // path -> (value, comment)
+  std::string section;
+  std::istringstream in(ReadFile(kExamplePath));
+  for (std::string line; std::getline(in, line);) {
+    if (!line.empty() && line[0] != ' ' && line[0] != '#') {
+      section = line.substr(0, line.find(':'));
+      continue;
+    }
+    std::smatch m;
+    if ((section == "mqtt" || section == "daemon") && std::regex_match(line, m, key_line)) {
+      found[section + "." + m[2].str()] = {m[3].str(), m[4].str()};
+    }
+  }
+  for (const ServiceKeySpec& key : ServiceKeys()) {
+    const auto it = found.find(std::string(key.path));
+    if (it == found.end()) {
+      ADD_FAILURE() << key.path << " is not listed in config/nightjar.yaml";
+      continue;
+    }
+    const std::string default_text = FormatValue(DefaultServiceValue(key));
+    EXPECT_EQ(it->second.first, default_text) << key.path << ": shows its default";
+    if (!key.unit.empty()) {
+      EXPECT_NE(it->second.second.find(std::string("[").append(key.unit).append("]")),
+                std::string::npos)
+          << key.path << ": names the unit";
+    }
+  }
+  const std::string text = ReadFile(kExamplePath);
+  for (const SubscriptionKeySpec& key : SubscriptionKeys()) {
+    const std::regex entry_line("\\n *# +(- )?" + std::string(key.name) + ": ([^\\n]*)");
+    std::smatch m;
+    ASSERT_TRUE(std::regex_search(text, m, entry_line)) << key.name;
+    if (key.required) {
+      EXPECT_NE(m[2].str().find("required"), std::string::npos) << key.name;
+    } else {
+      EXPECT_NE(m[2].str().find("default"), std::string::npos) << key.name;
+    }
+  }
+  const LoadResult r = LoadConfigFile(kExamplePath);
+  ASSERT_TRUE(r.ok()) << AllErrors(r);
+  ASSERT_EQ(r.config->service.mqtt.subscriptions.size(), 1u);
 }
 
 }  // namespace

@@ -259,3 +259,37 @@ TEST(KeyTableTest, BoundsAgreeWithCoreValidation) {
 
 }  // namespace
 }  // namespace nightjar::config
+
+namespace nightjar::config {
+namespace {
+
+// A reload keeps a channel's learnt state only when its options are the same key for key
+// (common practice: compare the settings an operator can write).
+TEST(SameChannelOptionsTest, DetectsAChangeInAnyKey) {
+  const core::ChannelOptions base;
+  EXPECT_TRUE(SameChannelOptions(base, base));
+  for (const KeySpec& key : ChannelKeys()) {
+    core::ChannelOptions changed = base;
+    const Value v = GetValue(key, base);
+    Value other = v;
+    if (const auto* s = std::get_if<std::string>(&v)) other = *s + "x";
+    if (const auto* b = std::get_if<bool>(&v)) other = !*b;
+    if (const auto* i = std::get_if<int>(&v)) other = *i + 1;
+    if (const auto* d = std::get_if<double>(&v)) other = *d == 0.0 ? 1.0 : -*d;
+    if (const auto* p = std::get_if<core::Priority>(&v))
+      other = *p == core::Priority::kHigh ? core::Priority::kLow : core::Priority::kHigh;
+    if (const auto* f = std::get_if<core::Forecaster>(&v))
+      other =
+          *f == core::Forecaster::kLstm ? core::Forecaster::kLastValue : core::Forecaster::kLstm;
+    if (std::holds_alternative<std::vector<core::EventTemplate>>(v)) {
+      core::EventTemplate event;
+      event.name = "pump_start";
+      other = std::vector<core::EventTemplate>{event};
+    }
+    SetValue(key, other, changed);
+    EXPECT_FALSE(SameChannelOptions(base, changed)) << key.path;
+  }
+}
+
+}  // namespace
+}  // namespace nightjar::config

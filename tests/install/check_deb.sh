@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # The Debian package built by CPack from this build tree holds the binary, the unit, the
 # example config as a conffile and the docs in their FHS places, and its dependencies are
-# worked out by dpkg-shlibdeps (libyaml-cpp among them).
+# worked out by dpkg-shlibdeps (libmosquitto among them).
 #   check_deb.sh BUILD_DIR WORKDIR
 set -euo pipefail
 build="$1" work="$2"
@@ -16,7 +16,7 @@ for path in ./usr/bin/nightjar ./lib/systemd/system/nightjar.service \
 done
 if grep -q "^./usr/include" "$work/contents.txt"; then echo "package ships headers" >&2; exit 1; fi
 dpkg-deb -f "$deb" Depends | tee "$work/depends.txt"
-grep -q "libyaml-cpp" "$work/depends.txt" || { echo "Depends lacks libyaml-cpp" >&2; exit 1; }
+grep -q "libmosquitto" "$work/depends.txt" || { echo "Depends lacks libmosquitto" >&2; exit 1; }
 dpkg-deb --ctrl-tarfile "$deb" | tar -t | grep -qx "./conffiles" || { echo "no conffiles" >&2; exit 1; }
 dpkg-deb -I "$deb" conffiles | grep -qx "/etc/nightjar/nightjar.yaml" || { echo "config is not a conffile" >&2; exit 1; }
 echo "package ok: $(basename "$deb")"

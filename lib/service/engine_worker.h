@@ -1,0 +1,152 @@
+// EngineWorker: one engine thread owning a shard of the channels.
+//
+// The network thread Offer()s samples (never blocking: a full queue refuses them and the
+// caller counts the drop) and hands over control items (operator commands, config
+// reloads) that always get through. The worker thread takes everything queued at once,
+// applies control items first, runs the samples through its core::Engine, and publishes:
+//   alerts    on <alert_prefix>/<channel as topic>, QoS from the config, not retained;
+//   state     retained on <state_prefix>/<channel as topic>, at once when the channel's
+//             state (learning/armed/in_alarm/stale) changes, otherwise at most every
+//             publish_interval_s while its values change;
+//   replies   to commands on the reply topic.
+// About every 100 ms, also when idle, it moves the engine's clock to the wall clock
+// (gap alarms for silent channels, state "stale") and publishes state that is due.
+//
+// The engine's time base is sample time, which may run behind the wall clock (a gateway
+// replaying a buffer, a clock offset). So the worker's "now" is the newest sample time
+// plus the wall-clock time elapsed since that sample arrived (the wall clock until the
+// first sample): silence is measured as it is felt, whatever the time base. Gap sweeps
+// and operator commands use it; a shelve lasts duration_s from then.
+//
+// Reload: each existing channel whose resolved options are unchanged keeps its pipeline
+// and what it learnt; a channel whose options changed starts learning again with the new
+// ones (its open alarms end without a clear; its state goes back to learning). New
+// channels get the new config.
+//
+// Stop: StopAndJoin() lets the thread finish everything already queued, publish the
+// latest state of every channel that changed since its last state message, then joins it.
+//
+// Thread-safety: Offer, PushControl and counters() from any thread; Start and
+// StopAndJoin from the owner's thread. The engine and per-channel bookkeeping are touched
+// by the worker thread only. Ownership: owns its engine, queue and thread; borrows the bus,
+// which must outlive StopAndJoin().
+#pragma once
+
+#include <atomic>
+#include <cstddef>
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <string>
+#include <thread>
+#include <variant>
+#include <vector>
+
+#include "config/config.h"
+#include "core/engine.h"
+#include "core/time.h"
+#include "mqtt/message_bus.h"
+#include "service/operator_command.h"
+#include "service/work_queue.h"
+
+namespace nightjar::service {
+
+struct SampleItem {
+  std::string channel;
+  core::TimestampUs time = 0;
+  double value = 0.0;
+};
+struct CommandItem {
+  ParsedCommand parsed;  // status OK
+};
+struct ReloadItem {
+  std::shared_ptr<const config::LoadedConfig> config;
+};
+struct StopItem {};
+using ControlItem = std::variant<CommandItem, ReloadItem, StopItem>;
+
+struct WorkerTopics {
+  std::string alert_prefix;
+  std::string state_prefix;
+  std::string reply_topic;
+  int qos = 1;
+  double publish_interval_s = 5.0;
+};
+
+struct WorkerCounters {
+  std::uint64_t samples = 0;         // samples run through the engine
+  std::uint64_t rejected = 0;        // samples for channels that could not be created
+  std::uint64_t alerts = 0;          // alerts published
+  std::uint64_t channels = 0;        // channels in the engine
+  std::uint64_t channels_kept = 0;   // by reloads: channels that kept their state
+  std::uint64_t channels_reset = 0;  // by reloads: channels that learn again
+};
+
+class EngineWorker {
+ public:
+  using Clock = std::function<core::TimestampUs()>;
+
+  EngineWorker(int index, std::shared_ptr<const config::LoadedConfig> config, WorkerTopics topics,
+               std::size_t queue_capacity, mqtt::MessageBus& bus, Clock clock);
+  ~EngineWorker();
+  EngineWorker(const EngineWorker&) = delete;
+  EngineWorker& operator=(const EngineWorker&) = delete;
+
+  void Start();
+  // False when the queue is full (nothing queued).
+  bool Offer(SampleItem sample) { return queue_.TryPush(std::move(sample)); }
+  void PushControl(ControlItem item) { queue_.PushControl(std::move(item)); }
+  void StopAndJoin();
+
+  WorkerCounters counters() const;
+  std::size_t queued() const { return queue_.size(); }
+
+ private:
+  // Per-channel publishing bookkeeping, by ChannelId.
+  struct ChannelView {
+    bool published = false;
+    core::ChannelState state = core::ChannelState::kLearning;
+    core::TimestampUs published_at = 0;  // wall clock
+    core::TimestampUs last_sample = 0;
+    bool dirty = false;  // values changed since the last publish
+  };
+
+  void Run();
+  void HandleSample(const SampleItem& sample, core::TimestampUs now);
+  void HandleCommand(const CommandItem& item, core::TimestampUs now);
+  void HandleReload(const ReloadItem& item);
+  void PublishAlerts();
+  void MaybePublishState(core::ChannelId id, core::TimestampUs now, bool force);
+  // Gap check and state that is due; `flush` publishes every changed state (on stop).
+  void Sweep(core::TimestampUs now, bool flush);
+  core::TimestampUs EngineNow(core::TimestampUs wall) const;
+
+  const int index_;
+  const WorkerTopics topics_;
+  mqtt::MessageBus& bus_;
+  const Clock clock_;
+  WorkQueue<SampleItem, ControlItem> queue_;
+  std::thread thread_;
+
+  // Worker thread only:
+  std::shared_ptr<const config::LoadedConfig> config_;
+  core::Engine engine_;
+  std::vector<ChannelView> views_;
+  std::vector<core::Alert> alerts_;
+  std::string topic_;
+  std::string payload_;
+  core::TimestampUs newest_time_ = 0;  // newest sample time seen
+  core::TimestampUs newest_wall_ = 0;  // wall clock when it arrived
+  bool has_sample_ = false;
+  core::TimestampUs last_sweep_ = 0;
+  std::uint64_t rejected_logged_ = 0;
+
+  std::atomic<std::uint64_t> samples_{0};
+  std::atomic<std::uint64_t> rejected_{0};
+  std::atomic<std::uint64_t> alerts_published_{0};
+  std::atomic<std::uint64_t> channels_{0};
+  std::atomic<std::uint64_t> kept_{0};
+  std::atomic<std::uint64_t> reset_{0};
+};
+
+}  // namespace nightjar::service

@@ -1,0 +1,196 @@
+#include "service/runtime.h"
+
+#include <spdlog/spdlog.h>
+
+#include "service/shard.h"
+
+namespace nightjar::service {
+
+core::Result<std::unique_ptr<Runtime>> Runtime::Create(
+    ServiceOptions options, std::shared_ptr<const config::LoadedConfig> config,
+    mqtt::MessageBus& bus, Clock clock) {
+  if (options.workers < 1) return core::Status::InvalidArgument("daemon.workers: must be >= 1");
+  std::unique_ptr<Runtime> runtime(new Runtime(std::move(options), bus, std::move(clock)));
+  Runtime* self = runtime.get();
+  core::Result<std::unique_ptr<mqtt::SampleIntake>> intake = mqtt::SampleIntake::Create(
+      self->options_.intake, self->clock_,
+      [self](std::string_view channel, core::TimestampUs time, double value) {
+        self->OnSample(channel, time, value);
+      },
+      [](std::string_view, const core::Status& problem, std::uint64_t suppressed) {
+        if (suppressed > 0) {
+          spdlog::warn("{} ({} more like it since the last report)", problem.message(), suppressed);
+        } else {
+          spdlog::warn("{}", problem.message());
+        }
+      });
+  if (!intake.ok()) return intake.status();
+  runtime->intake_ = std::move(intake).value();
+  const WorkerTopics topics{self->options_.alert_prefix, self->options_.state_prefix,
+                            self->options_.reply_topic, self->options_.qos,
+                            self->options_.publish_interval_s};
+  for (int i = 0; i < self->options_.workers; ++i) {
+    runtime->workers_.push_back(std::make_unique<EngineWorker>(
+        i, config, topics, self->options_.queue_capacity, bus, self->clock_));
+  }
+  bus.SetMessageHandler([self](std::string_view topic, std::string_view payload) {
+    self->OnMessage(topic, payload);
+  });
+  bus.SetConnectionHandler([self](bool connected) {
+    if (connected) {
+      spdlog::info("connected to broker {}:{}", self->options_.client.host,
+                   self->options_.client.port);
+      self->status_due_.store(true);
+    } else if (self->stopping_.load()) {
+      spdlog::info("disconnected from broker {}:{}", self->options_.client.host,
+                   self->options_.client.port);
+    } else {
+      spdlog::warn("connection to broker {}:{} lost; reconnecting", self->options_.client.host,
+                   self->options_.client.port);
+    }
+  });
+  return runtime;
+}
+
+Runtime::Runtime(ServiceOptions options, mqtt::MessageBus& bus, Clock clock)
+    : options_(std::move(options)),
+      bus_(bus),
+      clock_(std::move(clock)),
+      started_at_(clock_()),
+      drops_(mqtt::BadPayloadLogOptions{60.0, 4096}) {}
+
+Runtime::~Runtime() { Stop(); }
+
+core::Status Runtime::Start() {
+  if (started_) return core::Status::FailedPrecondition("runtime already started");
+  started_ = true;
+  for (const auto& [filter, qos] : intake_->Filters()) {
+    if (core::Status s = bus_.Subscribe(filter, qos); !s.ok()) return s;
+    ++filter_count_;
+  }
+  if (core::Status s = bus_.Subscribe(options_.command_topic, 1); !s.ok()) return s;
+  ++filter_count_;
+  for (auto& worker : workers_) worker->Start();
+  {
+    const std::lock_guard lock(handler_mutex_);
+    accepting_ = true;
+  }
+  return bus_.Start();
+}
+
+void Runtime::OnMessage(std::string_view topic, std::string_view payload) {
+  const std::lock_guard lock(handler_mutex_);
+  if (!accepting_) return;
+  if (topic == options_.command_topic) {
+    OnCommand(payload);
+    return;
+  }
+  if (IsOwnTopic(topic)) return;  // a broad subscription must not feed our output back in
+  intake_->OnMessage(topic, payload);
+}
+
+bool Runtime::IsOwnTopic(std::string_view topic) const {
+  const auto under = [topic](std::string_view prefix) {
+    return topic.size() > prefix.size() && topic.substr(0, prefix.size()) == prefix &&
+           topic[prefix.size()] == '/';
+  };
+  return topic == options_.status_topic || topic == options_.reply_topic ||
+         under(options_.alert_prefix) || under(options_.state_prefix);
+}
+
+void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double value) {
+  EngineWorker& worker = *workers_[ShardFor(channel, workers_.size())];
+  if (worker.Offer(SampleItem{std::string(channel), time, value})) return;
+  dropped_.fetch_add(1, std::memory_order_relaxed);
+  mqtt::BadPayloadLog::Decision d;
+  {
+    const std::lock_guard lock(drops_mutex_);
+    d = drops_.Record(channel, clock_());
+  }
+  if (d.log_now) {
+    spdlog::warn(
+        "worker queue full: dropped a sample of {} ({} dropped on it so far, {} since "
+        "the last report)",
+        channel, d.total, d.suppressed + 1);
+  }
+}
+
+void Runtime::OnCommand(std::string_view payload) {
+  commands_.fetch_add(1, std::memory_order_relaxed);
+  ParsedCommand parsed = ParseOperatorCommand(payload);
+  if (!parsed.status.ok()) {
+    spdlog::warn("topic {}: command refused: {}", options_.command_topic, parsed.status.message());
+    const core::Status s = bus_.Publish(
+        options_.reply_topic, CommandReplyJson(parsed, core::Status::Ok()), options_.qos, false);
+    if (!s.ok()) spdlog::warn("reply not published: {}", s.message());
+    return;
+  }
+  const std::size_t shard = ShardFor(parsed.command.channel, workers_.size());
+  workers_[shard]->PushControl(CommandItem{std::move(parsed)});
+}
+
+void Runtime::Tick() {
+  if (stopped_) return;
+  const core::TimestampUs now = clock_();
+  if (status_due_.exchange(false) || now >= next_status_) {
+    PublishStatus("online", "");
+    next_status_ = now + static_cast<core::TimestampUs>(options_.publish_interval_s * 1e6);
+  }
+}
+
+void Runtime::Reload(std::shared_ptr<const config::LoadedConfig> config) {
+  for (auto& worker : workers_) worker->PushControl(ReloadItem{config});
+  reloads_.fetch_add(1, std::memory_order_relaxed);
+  status_due_.store(true);
+}
+
+void Runtime::Stop() {
+  if (stopped_) return;
+  stopped_ = true;
+  stopping_.store(true);
+  {
+    const std::lock_guard lock(handler_mutex_);
+    accepting_ = false;
+  }
+  for (auto& worker : workers_) worker->StopAndJoin();
+  if (started_) {
+    PublishStatus("offline", "stopped");
+    bus_.Stop();
+  }
+}
+
+StatusCounters Runtime::counters() const {
+  StatusCounters c;
+  c.workers = static_cast<std::int64_t>(workers_.size());
+  for (const auto& worker : workers_) {
+    const WorkerCounters w = worker->counters();
+    c.channels += static_cast<std::int64_t>(w.channels);
+    c.samples += w.samples;
+    c.alerts += w.alerts;
+  }
+  const mqtt::IntakeStats intake = intake_->stats();
+  c.bad_payloads = intake.bad_payloads;
+  c.unmapped = intake.unmapped;
+  c.dropped = dropped_.load(std::memory_order_relaxed);
+  c.commands = commands_.load(std::memory_order_relaxed);
+  c.reloads = reloads_.load(std::memory_order_relaxed);
+  c.reload_failures = reload_failures_.load(std::memory_order_relaxed);
+  const mqtt::BusStats bus = bus_.stats();
+  c.outbox = bus.outbox_size;
+  c.reconnects = bus.reconnects;
+  return c;
+}
+
+bool Runtime::ready() const {
+  const mqtt::BusStats bus = bus_.stats();
+  return bus.connected && bus.subscribe_acks >= filter_count_;
+}
+
+void Runtime::PublishStatus(std::string_view state, std::string_view reason) {
+  const core::Status s = bus_.Publish(options_.status_topic,
+                                      StatusJson(state, reason, started_at_, clock_(), counters()),
+                                      options_.qos, true);
+  if (!s.ok()) spdlog::debug("status not published: {}", s.message());
+}
+
+}  // namespace nightjar::service

@@ -1,0 +1,112 @@
+// Runtime: the MQTT daemon's moving parts, wired together. `nightjar run` creates one.
+//
+// Threads. The bus's network thread runs the message handler and never computes: for a
+// sample topic it maps and parses the payload (SampleIntake) and offers the sample to the
+// worker owning the channel (ShardFor: a stable hash of the name), never blocking: a full
+// queue drops the sample, counted per channel and logged rate-limited. A message on the
+// command topic is parsed and validated there; messages on the daemon's own output topics
+// (a broad subscription can cover them) are ignored; an invalid command is answered at once on
+// the reply topic, a valid one goes to the owning worker's queue, which applies it and
+// replies. N EngineWorker threads each own an Engine shard (`workers: 1` runs the same
+// code). The caller's thread calls Tick() periodically (every 100 ms in nightjar run): it
+// publishes the retained status topic every publish_interval_s and after each connect.
+//
+// Topics (see README "Running on MQTT"): alerts and state per channel (engine_worker.h),
+// status {"state":"online",...counters} retained, with {"state":"offline",...} as the last
+// will and on a clean stop; replies to commands on the reply topic.
+//
+// Stop(): closes the intake (no handler is mid-way once it returns), lets every worker
+// finish what is queued, publishes the offline status, then stops the bus (which waits a
+// bounded time for unacknowledged publishes). Reload(): hands an already validated
+// config to every worker (engine_worker.h says what is kept); mqtt: and daemon: changes
+// need a restart.
+//
+// Thread-safety: Create/Start/Tick/Reload/Stop from one owner thread; counters() and
+// ready() from any thread. Ownership: owns the intake and workers; borrows the bus, which
+// must outlive the runtime (Stop() stops it).
+#pragma once
+
+#include <atomic>
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <mutex>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "config/config.h"
+#include "core/status.h"
+#include "core/time.h"
+#include "mqtt/bad_payload_log.h"
+#include "mqtt/message_bus.h"
+#include "mqtt/sample_intake.h"
+#include "service/engine_worker.h"
+#include "service/service_options.h"
+#include "service/state_json.h"
+
+namespace nightjar::service {
+
+class Runtime {
+ public:
+  using Clock = std::function<core::TimestampUs()>;
+
+  // Compiles the intake rules and builds the workers (not yet started). `bus` must be
+  // un-started; its handlers are set here.
+  static core::Result<std::unique_ptr<Runtime>> Create(
+      ServiceOptions options, std::shared_ptr<const config::LoadedConfig> config,
+      mqtt::MessageBus& bus, Clock clock);
+  ~Runtime();
+  Runtime(const Runtime&) = delete;
+  Runtime& operator=(const Runtime&) = delete;
+
+  // Subscribes, starts the workers and the bus (which connects in the background).
+  core::Status Start();
+  // Publishes the status when due.
+  void Tick();
+  // Applies a validated config to every worker.
+  void Reload(std::shared_ptr<const config::LoadedConfig> config);
+  // Counts a reload refused because the new file was invalid (for the status topic).
+  void NoteReloadFailure() { reload_failures_.fetch_add(1, std::memory_order_relaxed); }
+  // Idempotent.
+  void Stop();
+
+  StatusCounters counters() const;
+  // Connected and every subscription acknowledged at least once.
+  bool ready() const;
+
+ private:
+  Runtime(ServiceOptions options, mqtt::MessageBus& bus, Clock clock);
+  void OnMessage(std::string_view topic, std::string_view payload);
+  void OnSample(std::string_view channel, core::TimestampUs time, double value);
+  void OnCommand(std::string_view payload);
+  // Whether `topic` is one the daemon publishes (status, replies, alerts, state).
+  bool IsOwnTopic(std::string_view topic) const;
+  void PublishStatus(std::string_view state, std::string_view reason);
+
+  const ServiceOptions options_;
+  mqtt::MessageBus& bus_;
+  const Clock clock_;
+  const core::TimestampUs started_at_;
+  std::unique_ptr<mqtt::SampleIntake> intake_;
+  std::vector<std::unique_ptr<EngineWorker>> workers_;
+  std::size_t filter_count_ = 0;
+
+  std::mutex handler_mutex_;  // held by OnMessage; Stop() takes it to close the intake
+  bool accepting_ = false;    // guarded by handler_mutex_
+
+  std::mutex drops_mutex_;
+  mqtt::BadPayloadLog drops_;  // guarded by drops_mutex_: per-channel drop counts, rate-limited
+
+  std::atomic<bool> status_due_{true};
+  std::atomic<bool> stopping_{false};  // a lost connection is then the clean disconnect
+  std::atomic<std::uint64_t> dropped_{0};
+  std::atomic<std::uint64_t> commands_{0};
+  std::atomic<std::uint64_t> reloads_{0};
+  std::atomic<std::uint64_t> reload_failures_{0};
+  core::TimestampUs next_status_ = 0;  // owner thread
+  bool started_ = false;
+  bool stopped_ = false;
+};
+
+}  // namespace nightjar::service

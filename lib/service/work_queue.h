@@ -1,0 +1,75 @@
+// WorkQueue: the bounded hand-over from the network thread to one engine worker.
+//
+// Samples go through TryPush(): it never blocks, and when the queue already holds
+// `capacity` samples the sample is refused (the caller counts the drop). Control items
+// (operator commands, a config reload, the stop request) go through PushControl(), which
+// always succeeds: there are few of them and losing one would lose an operator's action.
+// PopAll() hands the worker everything queued, control items first, in one lock.
+//
+// Thread-safety: any number of producers, one consumer (PopAll). Ownership: owns the
+// queued items.
+#pragma once
+
+#include <chrono>
+#include <condition_variable>
+#include <cstddef>
+#include <deque>
+#include <mutex>
+#include <vector>
+
+namespace nightjar::service {
+
+template <typename Sample, typename Control>
+class WorkQueue {
+ public:
+  explicit WorkQueue(std::size_t capacity) : capacity_(capacity) {}
+
+  // False (and nothing queued) when `capacity` samples are waiting already.
+  bool TryPush(Sample sample) {
+    {
+      const std::lock_guard lock(mutex_);
+      if (samples_.size() >= capacity_) return false;
+      samples_.push_back(std::move(sample));
+    }
+    ready_.notify_one();
+    return true;
+  }
+
+  void PushControl(Control control) {
+    {
+      const std::lock_guard lock(mutex_);
+      controls_.push_back(std::move(control));
+    }
+    ready_.notify_one();
+  }
+
+  // Waits up to `timeout` for anything, then moves every queued item out (the vectors are
+  // cleared first; their capacity is reused). Returns whether anything was taken.
+  bool PopAll(std::chrono::milliseconds timeout, std::vector<Sample>& samples,
+              std::vector<Control>& controls) {
+    samples.clear();
+    controls.clear();
+    std::unique_lock lock(mutex_);
+    ready_.wait_for(lock, timeout, [this] { return !samples_.empty() || !controls_.empty(); });
+    for (Control& c : controls_) controls.push_back(std::move(c));
+    for (Sample& s : samples_) samples.push_back(std::move(s));
+    controls_.clear();
+    samples_.clear();
+    return !samples.empty() || !controls.empty();
+  }
+
+  std::size_t size() const {
+    const std::lock_guard lock(mutex_);
+    return samples_.size();
+  }
+  std::size_t capacity() const { return capacity_; }
+
+ private:
+  const std::size_t capacity_;
+  mutable std::mutex mutex_;
+  std::condition_variable ready_;
+  std::deque<Sample> samples_;    // guarded by mutex_
+  std::deque<Control> controls_;  // guarded by mutex_
+};
+
+}  // namespace nightjar::service

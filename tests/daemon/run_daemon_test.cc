@@ -1,0 +1,431 @@
+// `nightjar run` end to end: the real binary against a real mosquitto on a free loopback
+// port, fed by mosquitto_pub and watched by mosquitto_sub (daemon_fixture.h). Alert
+// payloads are validated against config/alert.schema.json with python3-jsonschema
+// (Debian's Draft 2020-12 validator) as the outside check of the wire format.
+//
+// The signal is a steady flow with Gaussian noise and a +10 m3/h (20 sigma) step for 30
+// samples: with the last-value forecaster any sound residual chart must raise at the step
+// and clear once it is over (common practice: a 20-sigma shift is far beyond every chart
+// limit the false-alarm budget gives).
+#include <gtest/gtest.h>
+#include <sys/socket.h>
+#include <sys/un.h>
+
+#include <algorithm>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "daemon_fixture.h"
+
+namespace nightjar::testing {
+namespace {
+
+using Json = nlohmann::json;
+
+const std::string kFlowTopic = "brackwater/cw2/pump_a/flow";
+const std::string kFlowAlerts = std::string(kAlertPrefix) + "/cw2/pump_a/flow";
+const std::string kFlowState = std::string(kStatePrefix) + "/cw2/pump_a/flow";
+
+std::unique_ptr<TestBroker> StartBroker() {
+  core::Result<std::unique_ptr<TestBroker>> broker = TestBroker::Start();
+  EXPECT_TRUE(broker.ok()) << broker.status().message();
+  return broker.ok() ? std::move(broker).value() : nullptr;
+}
+
+std::unique_ptr<Witness> Watch(const TestBroker& broker, const std::vector<std::string>& more) {
+  std::vector<std::string> extra;
+  for (const std::string& topic : more) {
+    extra.push_back("-t");
+    extra.push_back(topic);
+  }
+  core::Result<std::unique_ptr<Witness>> w =
+      Witness::Start(broker, std::string(kAlertPrefix) + "/#", 100000, extra);
+  EXPECT_TRUE(w.ok()) << w.status().message();
+  if (!w.ok()) return nullptr;
+  EXPECT_TRUE((*w)->WaitSubscribed());
+  return std::move(w).value();
+}
+
+std::vector<Json> AlertsOf(const Witness& w) {
+  std::vector<Json> out;
+  for (const auto& [topic, payload] : MessagesUnder(w, kAlertPrefix)) {
+    Json j = Json::parse(payload, nullptr, false);
+    j["_topic"] = topic;
+    out.push_back(j);
+  }
+  return out;
+}
+
+bool HasStatus(const Witness& w, const std::string& state) {
+  for (const auto& [topic, payload] : MessagesUnder(w, kStatusTopic)) {
+    const Json j = Json::parse(payload, nullptr, false);
+    if (j.is_object() && j.value("state", "") == state) return true;
+  }
+  return false;
+}
+
+Json LastStatus(const Witness& w) {
+  Json last;
+  for (const auto& [topic, payload] : MessagesUnder(w, kStatusTopic)) {
+    last = Json::parse(payload, nullptr, false);
+  }
+  return last;
+}
+
+// Retained state payload (without the retain flag) parsed, or null.
+Json StateOf(const TestBroker& broker, const std::string& topic) {
+  const std::string text = ReadRetained(broker, topic);
+  if (text.rfind("1 ", 0) != 0) return Json();
+  return Json::parse(text.substr(2), nullptr, false);
+}
+
+bool StateIs(const TestBroker& broker, const std::string& topic, const std::string& state,
+             Json* last = nullptr) {
+  return WaitFor(
+      [&] {
+        const Json j = StateOf(broker, topic);
+        if (last != nullptr) *last = j;
+        return j.is_object() && j.value("state", "") == state;
+      },
+      milliseconds(10000));
+}
+
+void StopCleanly(DaemonProcess& daemon) {
+  daemon.process().Signal(SIGTERM);
+  ASSERT_TRUE(daemon.process().WaitExit(milliseconds(5000))) << "no exit within 5 s after SIGTERM";
+  EXPECT_EQ(daemon.process().exit_code(), 0) << daemon.log();
+}
+
+TEST(RunDaemonTest, StepRaisesOnceClearsOnceStateRetainedSigtermGoesOffline) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  auto witness = Watch(*broker, {kStatusTopic, kReplyTopic});
+  ASSERT_TRUE(witness);
+  auto started = DaemonProcess::Start(*broker, TestConfig());
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+
+  // Warm-up (200 samples learning) and the first 20 samples of the step.
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, 420, 10.0, 400, 430)).ok());
+  ASSERT_TRUE(WaitFor([&] { return AlertsOf(*witness).size() >= 1; }, milliseconds(10000)))
+      << daemon.log();
+  // A subscriber arriving now gets the retained state: in alarm.
+  Json state;
+  EXPECT_TRUE(StateIs(*broker, kFlowState, "in_alarm", &state)) << state.dump();
+  EXPECT_EQ(state.value("channel", ""), "cw2.pump_a.flow");
+
+  // An operator acknowledges it; a malformed command is answered with the field at fault.
+  ASSERT_TRUE(
+      PublishOne(*broker, kCommandTopic,
+                 R"({"action":"acknowledge","channel":"cw2.pump_a.flow","request_id":"a1"})")
+          .ok());
+  ASSERT_TRUE(PublishOne(*broker, kCommandTopic,
+                         R"({"action":"shelve","channel":"cw2.pump_a.flow","request_id":"a2"})")
+                  .ok());
+  ASSERT_TRUE(WaitFor([&] { return MessagesUnder(*witness, kReplyTopic).size() >= 2; },
+                      milliseconds(10000)));
+  const auto replies = MessagesUnder(*witness, kReplyTopic);
+  const Json ack = Json::parse(replies[0].second);
+  EXPECT_EQ(ack["request_id"], "a1");
+  EXPECT_EQ(ack["ok"], true) << ack.dump();
+  const Json refused = Json::parse(replies[1].second);
+  EXPECT_EQ(refused["request_id"], "a2");
+  EXPECT_EQ(refused["ok"], false);
+  EXPECT_NE(refused["error"].get<std::string>().find("duration_s"), std::string::npos);
+
+  // The rest of the step, then steady flow again: the alarm clears.
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(420, 700, 10.0, 400, 430)).ok());
+  EXPECT_TRUE(StateIs(*broker, kFlowState, "armed", &state)) << state.dump() << daemon.log();
+
+  StopCleanly(daemon);
+  ASSERT_TRUE(WaitFor([&] { return HasStatus(*witness, "offline"); }, milliseconds(5000)))
+      << witness->output();
+  const std::string retained = ReadRetained(*broker, kStatusTopic);
+  EXPECT_EQ(retained.rfind("1 {\"state\":\"offline\"", 0), 0u) << retained;
+
+  const std::vector<Json> alerts = AlertsOf(*witness);
+  ASSERT_EQ(alerts.size(), 2u) << witness->output();
+  EXPECT_EQ(alerts[0]["phase"], "raise");
+  EXPECT_EQ(alerts[1]["phase"], "clear");
+  for (const Json& a : alerts) {
+    EXPECT_EQ(a["_topic"], kFlowAlerts);
+    EXPECT_EQ(a["channel"], "cw2.pump_a.flow");
+    EXPECT_EQ(a["kind"], "anomaly");
+    EXPECT_EQ(a["priority"], "medium");
+  }
+  // Raised within the step (2026-05-28T20:33:20Z is sample 400), cleared after it.
+  EXPECT_GE(alerts[0]["ts"].get<std::string>(), "2026-05-28T20:33:20.000Z");
+  EXPECT_LT(alerts[0]["ts"].get<std::string>(), "2026-05-28T20:33:50.000Z");
+  EXPECT_GE(alerts[1]["ts"].get<std::string>(), "2026-05-28T20:33:50.000Z");
+  EXPECT_GT(alerts[0]["value"].get<double>(), 55.0);
+
+  // Every alert payload against the published schema, checked by python3-jsonschema.
+  std::string lines;
+  for (const auto& [topic, payload] : MessagesUnder(*witness, kAlertPrefix)) {
+    lines += payload + "\n";
+  }
+  const std::string file = broker->dir().File("alerts.jsonl");
+  WriteFile(file, lines);
+  const core::Status valid = RunCommand(
+      {"/usr/bin/python3", std::string(NIGHTJAR_SOURCE_DIR) + "/tests/daemon/check_json_schema.py",
+       std::string(NIGHTJAR_SOURCE_DIR) + "/config/alert.schema.json", file},
+      broker->dir().File("schema.out"));
+  EXPECT_TRUE(valid.ok()) << valid.message();
+
+  const Json last = LastStatus(*witness);
+  EXPECT_EQ(last["samples"], 700) << last.dump();
+  EXPECT_EQ(last["alerts"], 2);
+  EXPECT_EQ(last["dropped"], 0);
+  EXPECT_EQ(last["commands"], 2);
+}
+
+TEST(RunDaemonTest, BadPayloadsAreCountedWithoutAlarmStormOrLogFlood) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  auto witness = Watch(*broker, {kStatusTopic});
+  ASSERT_TRUE(witness);
+  auto started = DaemonProcess::Start(*broker, TestConfig());
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, 300)).ok());
+  std::string bad;
+  for (int i = 0; i < 200; ++i) {
+    switch (i % 4) {
+      case 0:
+        bad += "abc\n";
+        break;
+      case 1:
+        bad += "{\"t\":" + std::to_string(kT0 + 300) + "}\n";  // no value
+        break;
+      case 2:
+        bad += "{\"t\":\"soon\",\"value\":1}\n";  // time not a number
+        break;
+      default:
+        bad += "{\"t\":1780000300,\"value\":\"high\"}\n";  // value not a number
+    }
+  }
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, bad).ok());
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(300, 350)).ok());
+  Json state;
+  ASSERT_TRUE(WaitFor(
+      [&] {
+        state = StateOf(*broker, kFlowState);
+        return state.is_object() && state.value("samples", 0) == 350;
+      },
+      milliseconds(10000)))
+      << state.dump();
+  EXPECT_EQ(state["state"], "armed");
+
+  StopCleanly(daemon);
+  ASSERT_TRUE(WaitFor([&] { return HasStatus(*witness, "offline"); }, milliseconds(5000)));
+  const Json last = LastStatus(*witness);
+  EXPECT_EQ(last["bad_payloads"], 200) << last.dump() << daemon.log();
+  EXPECT_EQ(last["samples"], 350);
+  EXPECT_TRUE(AlertsOf(*witness).empty()) << witness->output();
+  // BadPayloadLog: the first bad payload of the channel is logged at once, the rest of the
+  // burst within its 60 s window only counted.
+  const int lines = daemon.CountInLog("topic brackwater/cw2/pump_a/flow:");
+  EXPECT_GE(lines, 1) << daemon.log();
+  EXPECT_LE(lines, 2) << daemon.log();
+  // The subscription brackwater/+/+/+ also covers the status topic: the daemon must not
+  // read its own output as samples.
+  EXPECT_EQ(daemon.CountInLog("topic brackwater/cw2/nightjar/"), 0) << daemon.log();
+}
+
+TEST(RunDaemonTest, SighupKeepsTheOldConfigWhenBrokenAndAppliesAGoodOne) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  auto witness = Watch(*broker, {kStatusTopic});
+  ASSERT_TRUE(witness);
+  auto started = DaemonProcess::Start(*broker, TestConfig());
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+  const std::string b_topic = "brackwater/cw2/pump_b/flow";
+  const std::string b_state = std::string(kStatePrefix) + "/cw2/pump_b/flow";
+
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, 300)).ok());
+  ASSERT_TRUE(PublishLines(*broker, b_topic, FlowLines(0, 300)).ok());
+  ASSERT_TRUE(StateIs(*broker, kFlowState, "armed"));
+  ASSERT_TRUE(StateIs(*broker, b_state, "armed"));
+
+  // A broken file: rejected with its error (file:line:col: key path) logged; still running.
+  WriteFile(daemon.config_path(), TestConfig("  bogus_key: 1\n"));
+  daemon.process().Signal(SIGHUP);
+  ASSERT_TRUE(daemon.WaitLog("reload refused")) << daemon.log();
+  EXPECT_NE(daemon.log().find("nightjar.yaml:8:3: defaults.bogus_key: unknown key"),
+            std::string::npos)
+      << daemon.log();
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(300, 320)).ok());
+  Json state;
+  ASSERT_TRUE(WaitFor(
+      [&] {
+        state = StateOf(*broker, kFlowState);
+        return state.is_object() && state.value("samples", 0) == 320;
+      },
+      milliseconds(10000)))
+      << state.dump();
+  EXPECT_EQ(state["state"], "armed");
+
+  // A good file that changes pump A only: A learns again with the new options, B keeps
+  // what it learnt.
+  WriteFile(daemon.config_path(),
+            TestConfig("", "  - match: \"cw2.pump_a.*\"\n    anomaly_priority: high\n"));
+  daemon.process().Signal(SIGHUP);
+  ASSERT_TRUE(daemon.WaitLog("reloaded")) << daemon.log();
+  EXPECT_TRUE(StateIs(*broker, kFlowState, "learning", &state)) << state.dump();
+  EXPECT_EQ(daemon.CountInLog("cw2.pump_b.flow has new options"), 0);
+  const Json b = StateOf(*broker, b_state);
+  EXPECT_EQ(b.value("state", ""), "armed") << b.dump();
+  EXPECT_EQ(b.value("samples", 0), 300) << b.dump();
+
+  // After learning again, a step on A raises at the new priority.
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(1000, 1250, 10.0, 1230, 1250)).ok());
+  ASSERT_TRUE(WaitFor([&] { return AlertsOf(*witness).size() >= 1; }, milliseconds(10000)))
+      << daemon.log();
+  EXPECT_EQ(AlertsOf(*witness)[0]["priority"], "high");
+
+  StopCleanly(daemon);
+  ASSERT_TRUE(WaitFor([&] { return HasStatus(*witness, "offline"); }, milliseconds(5000)));
+  const Json last = LastStatus(*witness);
+  EXPECT_EQ(last["reloads"], 1) << last.dump();
+  EXPECT_EQ(last["reload_failures"], 1);
+}
+
+// Alerts raised while the broker is down wait in the client's outbox and reach a
+// subscriber after the broker is back, none lost. The alert is a gap alarm: with
+// gap_periods 3 on a 1 s channel, 3 s of silence (the broker is gone) raises it while
+// disconnected. The subscriber holds a persistent session (clean session off, QoS 1) on a
+// broker with persistence on, so the broker keeps what arrives for it while it is away
+// (MQTT 3.1.1 section 3.1.2.4).
+TEST(RunDaemonTest, AlertsRaisedWhileTheBrokerIsDownArriveAfterItReturns) {
+  TempDir store;
+  const std::string persistence = "persistence true\npersistence_location " + store.path() + "/\n";
+  core::Result<std::unique_ptr<TestBroker>> started_broker = TestBroker::Start(persistence);
+  ASSERT_TRUE(started_broker.ok()) << started_broker.status().message();
+  TestBroker& broker = **started_broker;
+  const std::string port = std::to_string(broker.port());
+  const std::vector<std::string> witness_argv = {
+      "stdbuf", "-oL",       "mosquitto_sub",
+      "-h",     "127.0.0.1", "-p",
+      port,     "-i",        "cw2-outbox-witness",
+      "-c",     "-q",        "1",
+      "-d",     "-t",        std::string(kAlertPrefix) + "/#",
+      "-F",     "MSG %t %p"};
+  const std::string first_out = broker.dir().File("witness-first.out");
+  {
+    auto first = ChildProcess::Spawn(witness_argv, first_out);
+    ASSERT_TRUE(first.ok());
+    ASSERT_TRUE(
+        WaitFor([&] { return ReadFile(first_out).find("Subscribed") != std::string::npos; }));
+    (*first)->Terminate();  // the session stays at the broker
+  }
+  auto started = DaemonProcess::Start(
+      broker, TestConfig("", "  - match: \"cw2.**\"\n    sensor: { gap_periods: 3 }\n"));
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+  ASSERT_TRUE(PublishLines(broker, kFlowTopic, FlowLines(0, 300)).ok());
+  ASSERT_TRUE(StateIs(broker, kFlowState, "armed"));
+
+  broker.Stop();
+  ASSERT_TRUE(daemon.WaitLog("lost; reconnecting")) << daemon.log();
+  ASSERT_TRUE(daemon.WaitLog("alert raise cw2.pump_a.flow sensor gap")) << daemon.log();
+  ASSERT_TRUE(broker.Restart(persistence).ok());
+  const std::string second_out = broker.dir().File("witness-second.out");
+  auto second = ChildProcess::Spawn(witness_argv, second_out);
+  ASSERT_TRUE(second.ok());
+  ASSERT_TRUE(WaitFor(
+      [&] { return ReadFile(second_out).find("\"detector\":\"gap\"") != std::string::npos; },
+      milliseconds(20000)))
+      << ReadFile(second_out) << daemon.log();
+  EXPECT_EQ(daemon.CountInLog("connected to broker"), 2) << daemon.log();
+  // Every alert the daemon logged reached the subscriber, once.
+  ASSERT_TRUE(WaitFor(
+      [&] {
+        const std::string text = ReadFile(second_out);
+        int n = 0;
+        for (std::size_t at = text.find("MSG "); at != std::string::npos;
+             at = text.find("MSG ", at + 1))
+          ++n;
+        return n == daemon.CountInLog("info alert ");
+      },
+      milliseconds(5000)))
+      << ReadFile(second_out) << daemon.log();
+  StopCleanly(daemon);
+}
+
+// systemd notifications, read from a NOTIFY_SOCKET of our own (sd_notify(3) sends one
+// datagram per call to the AF_UNIX socket that variable names; WATCHDOG_USEC asks for
+// keep-alives, sd_watchdog_enabled(3)): READY=1 once connected and subscribed, WATCHDOG=1
+// at least every half interval, a STATUS= line, STOPPING=1 on SIGTERM.
+TEST(RunDaemonTest, TellsSystemdReadyWatchdogStatusAndStopping) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  const std::string path = broker->dir().File("notify.sock");
+  const int fd = ::socket(AF_UNIX, SOCK_DGRAM | SOCK_NONBLOCK, 0);
+  ASSERT_GE(fd, 0);
+  sockaddr_un addr{};
+  addr.sun_family = AF_UNIX;
+  ASSERT_LT(path.size(), sizeof(addr.sun_path));
+  std::copy(path.begin(), path.end(), addr.sun_path);
+  ASSERT_EQ(::bind(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)), 0);
+  ::setenv("NOTIFY_SOCKET", path.c_str(), 1);
+  ::setenv("WATCHDOG_USEC", "400000", 1);
+  auto started = DaemonProcess::Start(*broker, TestConfig());
+  ::unsetenv("NOTIFY_SOCKET");
+  ::unsetenv("WATCHDOG_USEC");
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+
+  std::vector<std::string> messages;
+  const auto count = [&](const std::string& prefix) {
+    char buffer[4096];
+    for (;;) {
+      const ssize_t n = ::recv(fd, buffer, sizeof(buffer), 0);
+      if (n <= 0) break;
+      messages.emplace_back(buffer, static_cast<std::size_t>(n));
+    }
+    int k = 0;
+    for (const std::string& m : messages) k += m.rfind(prefix, 0) == 0 ? 1 : 0;
+    return k;
+  };
+  EXPECT_TRUE(WaitFor([&] { return count("READY=1") == 1; }));
+  EXPECT_TRUE(WaitFor([&] { return count("WATCHDOG=1") >= 3; }));
+  EXPECT_TRUE(WaitFor([&] { return count("STATUS=") >= 1; }));
+  StopCleanly(daemon);
+  EXPECT_TRUE(WaitFor([&] { return count("STOPPING=1") == 1; }, milliseconds(2000)));
+  EXPECT_EQ(count("READY=1"), 1);
+  ::close(fd);
+}
+
+TEST(RunDaemonTest, ConfigErrorsExitOneNamingFileLineAndKey) {
+  TempDir dir;
+  const std::string config = dir.File("bad.yaml");
+  WriteFile(config, "mqtt:\n  port: 0\n  subscriptions: []\n");
+  const std::string out = dir.File("out");
+  auto child = ChildProcess::Spawn({NIGHTJAR_BINARY, "run", "--config", config}, out);
+  ASSERT_TRUE(child.ok());
+  ASSERT_TRUE((*child)->WaitExit(milliseconds(10000)));
+  EXPECT_EQ((*child)->exit_code(), 1);
+  EXPECT_NE(ReadFile(out).find(config + ":2:9: mqtt.port: must be in [1, 65535], got 0"),
+            std::string::npos)
+      << ReadFile(out);
+
+  WriteFile(config, "defaults: {}\n");  // loads, but gives nightjar run nothing to listen to
+  auto second = ChildProcess::Spawn({NIGHTJAR_BINARY, "run", "--config", config}, out + "2");
+  ASSERT_TRUE(second.ok());
+  ASSERT_TRUE((*second)->WaitExit(milliseconds(10000)));
+  EXPECT_EQ((*second)->exit_code(), 1);
+  EXPECT_NE(ReadFile(out + "2").find("mqtt.subscriptions: nightjar run needs at least one"),
+            std::string::npos)
+      << ReadFile(out + "2");
+
+  auto usage = ChildProcess::Spawn({NIGHTJAR_BINARY, "run"}, out + "3");
+  ASSERT_TRUE(usage.ok());
+  ASSERT_TRUE((*usage)->WaitExit(milliseconds(10000)));
+  EXPECT_EQ((*usage)->exit_code(), 2);
+}
+
+}  // namespace
+}  // namespace nightjar::testing
