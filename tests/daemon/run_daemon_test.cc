@@ -284,6 +284,7 @@ TEST(RunDaemonTest, SighupKeepsTheOldConfigWhenBrokenAndAppliesAGoodOne) {
   ASSERT_TRUE(daemon.WaitLog("reloaded")) << daemon.log();
   EXPECT_TRUE(StateIs(*broker, kFlowState, "learning", &state)) << state.dump();
   EXPECT_EQ(daemon.CountInLog("cw2.pump_b.flow has new options"), 0);
+  EXPECT_EQ(daemon.CountInLog("mqtt: or daemon: changed"), 0);  // only channels: changed
   const Json b = StateOf(*broker, b_state);
   EXPECT_EQ(b.value("state", ""), "armed") << b.dump();
   EXPECT_EQ(b.value("samples", 0), 300) << b.dump();
