@@ -105,6 +105,9 @@ const SubscriptionKeySpec* FindSubscriptionKey(std::string_view name);
 // The key's value in a default ServiceConfig, as FormatValue would write it.
 Value DefaultServiceValue(const ServiceKeySpec& key);
 Value DefaultSubscriptionValue(const SubscriptionKeySpec& key);
+// Whether every mqtt: and daemon: key, subscriptions included, has the same value.
+bool SameServiceConfig(const ServiceConfig& a, const ServiceConfig& b);
+
 // Writes `value` (its alternative must match key.type(); asserted) into `config`.
 void SetServiceValue(const ServiceKeySpec& key, const Value& value, ServiceConfig& config);
 

@@ -231,6 +231,24 @@ Value DefaultSubscriptionValue(const SubscriptionKeySpec& key) {
   return Value(*key.field(entry));
 }
 
+bool SameServiceConfig(const ServiceConfig& a, const ServiceConfig& b) {
+  ServiceConfig x = a;
+  ServiceConfig y = b;
+  for (const ServiceKeySpec& key : kServiceKeys) {
+    const auto value = [&key](ServiceConfig& c) {
+      return std::visit([](auto* field) { return Value(*field); }, key.field(c));
+    };
+    if (FormatValue(value(x)) != FormatValue(value(y))) return false;
+  }
+  if (x.mqtt.subscriptions.size() != y.mqtt.subscriptions.size()) return false;
+  for (std::size_t i = 0; i < x.mqtt.subscriptions.size(); ++i) {
+    for (const SubscriptionKeySpec& key : kSubscriptionKeys) {
+      if (*key.field(x.mqtt.subscriptions[i]) != *key.field(y.mqtt.subscriptions[i])) return false;
+    }
+  }
+  return true;
+}
+
 void SetServiceValue(const ServiceKeySpec& key, const Value& value, ServiceConfig& config) {
   std::visit(
       [&value](auto* field) {

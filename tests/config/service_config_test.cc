@@ -149,6 +149,31 @@ TEST(ServiceConfigTest, CrossKeyRules) {
   EXPECT_EQ(r.errors[2].line, 5);
 }
 
+TEST(ServiceConfigTest, SameServiceConfigSeesEveryKeyAndSubscription) {
+  const ServiceConfig base;
+  EXPECT_TRUE(SameServiceConfig(base, base));
+  for (const ServiceKeySpec& key : ServiceKeys()) {
+    ServiceConfig changed = base;
+    const Value v = DefaultServiceValue(key);
+    Value other = v;
+    if (const auto* s = std::get_if<std::string>(&v)) other = *s + "x";
+    if (const auto* b = std::get_if<bool>(&v)) other = !*b;
+    if (const auto* i = std::get_if<int>(&v)) other = *i + 1;
+    if (const auto* d = std::get_if<double>(&v)) other = *d + 1.0;
+    SetServiceValue(key, other, changed);
+    EXPECT_FALSE(SameServiceConfig(base, changed)) << key.path;
+  }
+  ServiceConfig one = base;
+  one.mqtt.subscriptions.push_back(SubscriptionConfig{});
+  EXPECT_FALSE(SameServiceConfig(base, one));
+  ServiceConfig other = one;
+  other.mqtt.subscriptions[0].time_unit = "epoch_ms";
+  EXPECT_FALSE(SameServiceConfig(one, other));
+  other.mqtt.subscriptions[0].line = 99;  // where it was written does not matter
+  other.mqtt.subscriptions[0].time_unit = one.mqtt.subscriptions[0].time_unit;
+  EXPECT_TRUE(SameServiceConfig(one, other));
+}
+
 TEST(ServiceConfigTest, ReferenceYamlListsEveryServiceKey) {
   const std::string yaml = RenderReferenceYaml();
   for (const ServiceKeySpec& key : ServiceKeys()) {

@@ -10,7 +10,9 @@
 
 #include <chrono>
 #include <cmath>
+#include <condition_variable>
 #include <map>
+#include <mutex>
 #include <nlohmann/json.hpp>
 #include <random>
 #include <string>
@@ -147,6 +149,55 @@ TEST(RuntimeTest, RoutesSamplesToWorkersAndPublishesAlertsStateAndReplies) {
   EXPECT_EQ(c.bad_payloads, 0u);
   EXPECT_EQ(c.commands, 1u);
   EXPECT_EQ(c.dropped, 0u);
+}
+
+// A full worker queue drops samples, counted, and never blocks the delivering (network)
+// thread. Made deterministic by a clock that holds the worker thread (the worker reads
+// the clock right after taking its queue) while the test thread delivers.
+TEST(RuntimeTest, FullQueueDropsAndCountsWithoutBlockingTheNetworkThread) {
+  std::string text = kConfig;
+  text.replace(text.find("  workers: 3"), std::string("  workers: 3").size(),
+               "  workers: 1\n  queue_capacity: 16");
+  const auto config = Load(text);
+  ASSERT_TRUE(config);
+  core::Result<ServiceOptions> options = BuildServiceOptions(*config, "test.yaml", std::nullopt);
+  ASSERT_TRUE(options.ok()) << options.status().message();
+  ASSERT_EQ(options->queue_capacity, 16u);
+
+  const std::thread::id test_thread = std::this_thread::get_id();
+  std::mutex mutex;
+  std::condition_variable changed;
+  bool held = false;     // the worker is waiting inside the clock
+  bool release = false;  // let it go
+  const Runtime::Clock clock = [&]() -> core::TimestampUs {
+    if (std::this_thread::get_id() != test_thread) {
+      std::unique_lock lock(mutex);
+      held = true;
+      changed.notify_all();
+      changed.wait(lock, [&] { return release; });
+    }
+    return Now();
+  };
+  testing::FakeBus bus;
+  auto runtime = Runtime::Create(*options, config, bus, clock);
+  ASSERT_TRUE(runtime.ok()) << runtime.status().message();
+  Runtime& rt = **runtime;
+  ASSERT_TRUE(rt.Start().ok());
+  {
+    std::unique_lock lock(mutex);
+    ASSERT_TRUE(changed.wait_for(lock, std::chrono::seconds(10), [&] { return held; }));
+  }
+  for (int i = 0; i < 100; ++i) ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(i, 50.0)));
+  EXPECT_EQ(rt.counters().dropped, 84u);
+  {
+    const std::lock_guard lock(mutex);
+    release = true;
+  }
+  changed.notify_all();
+  ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 16; }, std::chrono::seconds(10)));
+  rt.Stop();
+  EXPECT_EQ(rt.counters().samples, 16u);
+  EXPECT_EQ(rt.counters().dropped, 84u);
 }
 
 TEST(ServiceOptionsTest, ErrorsNameFileLineAndKey) {
