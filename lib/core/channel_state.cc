@@ -530,9 +530,10 @@ Status ReadFraming(std::span<const std::uint8_t> bytes, Framing& framing, StateP
 
 }  // namespace
 
-Result<std::string> PeekChannelName(std::span<const std::uint8_t> bytes) {
+Result<std::string> PeekChannelName(std::span<const std::uint8_t> bytes, StateProblem* problem) {
+  if (problem != nullptr) *problem = StateProblem::kNone;
   Framing framing;
-  if (Status s = ReadFraming(bytes, framing, nullptr); !s.ok()) return s;
+  if (Status s = ReadFraming(bytes, framing, problem); !s.ok()) return s;
   return framing.name;
 }
 

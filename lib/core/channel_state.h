@@ -56,8 +56,10 @@ std::uint64_t OptionsFingerprint(const ChannelOptions& options);
 // Appends the checkpoint of `pipeline` to `out`.
 void EncodeChannelState(const ChannelPipeline& pipeline, std::vector<std::uint8_t>& out);
 
-// The channel name in a checkpoint's header, without checking the rest.
-Result<std::string> PeekChannelName(std::span<const std::uint8_t> bytes);
+// The channel name in a checkpoint's header after checking its framing and CRC (not the
+// version, options or body); on failure *problem says why (if not null).
+Result<std::string> PeekChannelName(std::span<const std::uint8_t> bytes,
+                                    StateProblem* problem = nullptr);
 
 // Restores `pipeline` (built from the current options under its name) from a checkpoint. On
 // failure *problem says why (if not null), the message says where, and the pipeline is
