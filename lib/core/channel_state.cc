@@ -471,6 +471,13 @@ Status Fail(StateProblem problem, StateProblem* out, Status status) {
   return status;
 }
 
+std::string Hex(std::uint32_t value) {
+  static constexpr char kDigits[] = "0123456789abcdef";
+  std::string text = "0x";
+  for (int shift = 28; shift >= 0; shift -= 4) text.push_back(kDigits[(value >> shift) & 0xFU]);
+  return text;
+}
+
 // Header and CRC; the body is not looked at.
 Status ReadFraming(std::span<const std::uint8_t> bytes, Framing& framing, StateProblem* problem) {
   if (bytes.size() >= 4 && !std::equal(bytes.begin(), bytes.begin() + 4, kMagic)) {
@@ -520,8 +527,8 @@ Status ReadFraming(std::span<const std::uint8_t> bytes, Framing& framing, StateP
   const std::uint32_t computed = Crc32(bytes.first(crc_at));
   if (stored != computed) {
     return Fail(StateProblem::kCorrupt, problem,
-                Status::DataLoss("corrupt: CRC-32 mismatch (stored " + std::to_string(stored) +
-                                 ", computed " + std::to_string(computed) + ")"));
+                Status::DataLoss("corrupt: CRC-32 mismatch (stored " + Hex(stored) + ", computed " +
+                                 Hex(computed) + ")"));
   }
   framing.body = bytes.subspan(static_cast<std::size_t>(expected_before_body),
                                static_cast<std::size_t>(body_length));

@@ -64,8 +64,11 @@ LoadOutcome FromProblem(core::StateProblem problem) {
 LoadEntry Entry(std::string channel, std::string file, LoadOutcome outcome,
                 const std::string& detail) {
   LoadEntry entry{std::move(channel), std::move(file), outcome, {}};
-  entry.message = entry.file + ": " + LoadOutcomeName(outcome);
-  if (!detail.empty()) entry.message += ": " + detail;
+  // Core messages start with the problem's name already ("corrupt: CRC-32 ...").
+  const std::string name = LoadOutcomeName(outcome);
+  entry.message = entry.file + ": ";
+  if (detail.rfind(name + ":", 0) != 0) entry.message += detail.empty() ? name : name + ": ";
+  entry.message += detail;
   return entry;
 }
 
@@ -222,10 +225,10 @@ LoadReport LoadEngineState(core::Engine& engine, const std::string& dir) {
   for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
     const std::string& channel = engine.channel_name(id);
     if (covered.count(channel) != 0) continue;
-    const bool had_file = std::any_of(report.entries.begin(), report.entries.end(),
-                                      [&](const LoadEntry& e) { return e.channel == channel; });
-    if (had_file) continue;
     const std::string file = (fs::path(dir) / StateFileName(channel)).string();
+    const bool had_file = std::any_of(report.entries.begin(), report.entries.end(),
+                                      [&](const LoadEntry& e) { return e.file == file; });
+    if (had_file) continue;
     report.entries.push_back(Entry(channel, file, LoadOutcome::kMissing, "starts fresh"));
   }
   return report;

@@ -156,6 +156,25 @@ TEST_F(StateDirectoryTest, EveryProblemNamesItsFile) {
   EXPECT_FALSE(engine.FindChannel(kChannels[1]).has_value());
 }
 
+TEST_F(StateDirectoryTest, DamagedFileOfAKnownChannelIsNotAlsoMissing) {
+  SaveTrained();
+  std::vector<std::uint8_t> flow = Read(PathOf(kChannels[0]));
+  flow[20] ^= 0x01;
+  Write(PathOf(kChannels[0]), flow);
+  Engine engine(SmallModel());
+  ASSERT_TRUE(engine.AddChannel(kChannels[0]).ok());  // as replay does before loading
+  const LoadReport report = LoadEngineState(engine, dir_);
+  ASSERT_EQ(report.entries.size(), 2U);
+  EXPECT_EQ(report.loaded(), 1U);
+  EXPECT_EQ(report.problems(), 1U);
+  const LoadEntry* corrupt = EntryFor(report, PathOf(kChannels[0]));
+  ASSERT_NE(corrupt, nullptr);
+  EXPECT_EQ(corrupt->message, PathOf(kChannels[0]) + ": corrupt: CRC-32 mismatch" +
+                                  corrupt->message.substr(corrupt->message.find(" (stored")));
+  EXPECT_EQ(engine.channel_status(*engine.FindChannel(kChannels[0])).state,
+            ChannelState::kLearning);
+}
+
 TEST_F(StateDirectoryTest, RenamedFileIsAnotherChannels) {
   SaveTrained();
   fs::remove(PathOf(kChannels[1]));
