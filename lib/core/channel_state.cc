@@ -50,6 +50,14 @@ class SaveArchive {
   void operator()(const Eigen::Matrix<T, R, C, O, MR, MC>& m) {
     writer_.U32(static_cast<std::uint32_t>(m.rows()));
     writer_.U32(static_cast<std::uint32_t>(m.cols()));
+    const auto n = static_cast<std::size_t>(m.size());
+    if constexpr (std::is_same_v<T, float>) {
+      writer_.F32s(m.data(), n);
+      return;
+    } else if constexpr (std::is_same_v<T, double>) {
+      writer_.F64s(m.data(), n);
+      return;
+    }
     for (Eigen::Index i = 0; i < m.size(); ++i) {
       if constexpr (std::is_same_v<T, std::uint16_t>) {  // bfloat16 states: two bytes each
         writer_.U8(static_cast<std::uint8_t>(m.data()[i] & 0xFFU));
@@ -131,6 +139,15 @@ class LoadArchive {
     (void)reader_.U32(&cols);
     if (!reader_.ok()) return;
     Check(rows == m.rows() && cols == m.cols(), "a matrix has another shape than the options give");
+    if (!reader_.ok()) return;
+    const auto n = static_cast<std::size_t>(m.size());
+    if constexpr (std::is_same_v<T, float>) {
+      (void)reader_.F32s(m.data(), n);
+      return;
+    } else if constexpr (std::is_same_v<T, double>) {
+      (void)reader_.F64s(m.data(), n);
+      return;
+    }
     for (Eigen::Index i = 0; reader_.ok() && i < m.size(); ++i) {
       if constexpr (std::is_same_v<T, std::uint16_t>) {
         std::uint8_t low = 0;

@@ -1,6 +1,7 @@
 #include "core/state_codec.h"
 
 #include <bit>
+#include <cstring>
 #include <utility>
 
 namespace nightjar::core {
@@ -19,6 +20,65 @@ void StateWriter::F64(double value) { U64(std::bit_cast<std::uint64_t>(value)); 
 
 void StateWriter::Bytes(std::span<const std::uint8_t> bytes) {
   out_.insert(out_.end(), bytes.begin(), bytes.end());
+}
+
+namespace {
+template <typename T, typename Bits>
+void AppendValues(std::vector<std::uint8_t>& out, const T* values, std::size_t n) {
+  const std::size_t at = out.size();
+  out.resize(at + n * sizeof(T));
+  if constexpr (std::endian::native == std::endian::little) {
+    if (n > 0) std::memcpy(out.data() + at, values, n * sizeof(T));
+  } else {
+    for (std::size_t i = 0; i < n; ++i) {
+      const auto bits = std::bit_cast<Bits>(values[i]);
+      for (std::size_t b = 0; b < sizeof(T); ++b) {
+        out[at + i * sizeof(T) + b] = static_cast<std::uint8_t>(bits >> (8 * b));
+      }
+    }
+  }
+}
+
+template <typename T, typename Bits>
+void ReadValues(const std::uint8_t* at, T* values, std::size_t n) {
+  if constexpr (std::endian::native == std::endian::little) {
+    if (n > 0) std::memcpy(values, at, n * sizeof(T));
+  } else {
+    for (std::size_t i = 0; i < n; ++i) {
+      Bits bits = 0;
+      for (std::size_t b = 0; b < sizeof(T); ++b) {
+        bits |= static_cast<Bits>(at[i * sizeof(T) + b]) << (8 * b);
+      }
+      values[i] = std::bit_cast<T>(bits);
+    }
+  }
+}
+}  // namespace
+
+void StateWriter::F32s(const float* values, std::size_t n) {
+  AppendValues<float, std::uint32_t>(out_, values, n);
+}
+
+void StateWriter::F64s(const double* values, std::size_t n) {
+  AppendValues<double, std::uint64_t>(out_, values, n);
+}
+
+Status StateReader::F32s(float* values, std::size_t n) {
+  // Checked before multiplying, so a huge n cannot wrap around.
+  const std::size_t left = bytes_.size() - position_;
+  const std::uint8_t* at = Take(n > left / sizeof(float) ? left + 1 : n * sizeof(float));
+  if (at == nullptr) return status_;
+  ReadValues<float, std::uint32_t>(at, values, n);
+  return Status::Ok();
+}
+
+Status StateReader::F64s(double* values, std::size_t n) {
+  // Checked before multiplying, so a huge n cannot wrap around.
+  const std::size_t left = bytes_.size() - position_;
+  const std::uint8_t* at = Take(n > left / sizeof(double) ? left + 1 : n * sizeof(double));
+  if (at == nullptr) return status_;
+  ReadValues<double, std::uint64_t>(at, values, n);
+  return Status::Ok();
 }
 
 void StateWriter::String(std::string_view text) {

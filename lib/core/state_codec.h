@@ -31,6 +31,9 @@ class StateWriter {
   void F32(float value);
   void F64(double value);
   void Bytes(std::span<const std::uint8_t> bytes);
+  // n values in a row, as F32/F64 would write them one by one (one copy on LE hosts).
+  void F32s(const float* values, std::size_t n);
+  void F64s(const double* values, std::size_t n);
   void String(std::string_view text);  // u32 length, then the bytes
 
   // Overwrites 8 bytes at `offset` (already written), e.g. a length known only later.
@@ -51,6 +54,8 @@ class StateReader {
   Status I64(std::int64_t* value);
   Status F32(float* value);
   Status F64(double* value);
+  Status F32s(float* values, std::size_t n);
+  Status F64s(double* values, std::size_t n);
   // u32 length then bytes; fails if the length runs past the end or exceeds max_length.
   Status String(std::string* text, std::uint32_t max_length);
 
