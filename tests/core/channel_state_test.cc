@@ -166,6 +166,46 @@ TEST(ChannelStateTest, RestoredChannelContinuesBitForBit) {
   EXPECT_NE(end_a, bytes);  // and it did move on
 }
 
+// Template matchers, the last-value forecaster and no time-of-day features go through
+// the same field list: a restore in the middle of a template window changes nothing.
+TEST(ChannelStateTest, RestoredChannelWithTemplatesContinuesBitForBit) {
+  EngineOptions options = SmallModel();
+  options.defaults.time_of_day_features = false;
+  options.defaults.forecaster = Forecaster::kLastValue;
+  EventTemplate bump;
+  bump.name = "bump";
+  for (int k = 0; k < 60; ++k) bump.shape.push_back(std::sin(std::numbers::pi * k / 59.0));
+  options.defaults.events = {bump};
+  std::vector<double> values = Signal(2600);
+  for (int i = 1000; i < 1060; ++i)
+    values[static_cast<std::size_t>(i)] += 6.0 * bump.shape[static_cast<std::size_t>(i - 1000)];
+  for (int i = 2000; i < 2060; ++i)
+    values[static_cast<std::size_t>(i)] += 6.0 * bump.shape[static_cast<std::size_t>(i - 2000)];
+
+  Engine uninterrupted(options);
+  const ChannelId a = *uninterrupted.AddChannel(kName);
+  std::vector<Alert> ignored;
+  Feed(uninterrupted, a, 0, 1030, values, ignored);  // mid-bump, mid-window
+  std::vector<std::uint8_t> bytes;
+  uninterrupted.SaveChannel(a, bytes);
+  Engine restored(options);
+  ASSERT_TRUE(restored.LoadChannel(kName, bytes).ok());
+  const ChannelId b = *restored.FindChannel(kName);
+  std::vector<Alert> after_a;
+  std::vector<Alert> after_b;
+  Feed(uninterrupted, a, 1030, 2600, values, after_a);
+  Feed(restored, b, 1030, 2600, values, after_b);
+  ExpectSameAlerts(after_a, after_b);
+  std::size_t events = 0;
+  for (const Alert& alert : after_b) events += alert.kind == AlertKind::kEvent ? 1 : 0;
+  EXPECT_GE(events, 2U) << "the bump across the restore point and the later one are seen";
+  std::vector<std::uint8_t> end_a;
+  std::vector<std::uint8_t> end_b;
+  uninterrupted.SaveChannel(a, end_a);
+  restored.SaveChannel(b, end_b);
+  EXPECT_EQ(end_a, end_b);
+}
+
 TEST(ChannelStateTest, FlippedByteIsCorruptAndChannelStartsFresh) {
   std::vector<std::uint8_t> bytes = Checkpoint(800);
   bytes[bytes.size() / 2] ^= 0x10;
