@@ -105,8 +105,8 @@ int RunLearnCommand(const LearnFlags& flags) {
   std::printf("learnt from %s: %" PRId64 " rows, %" PRId64 " samples\n", flags.input.c_str(),
               summary.rows, summary.samples);
   for (const replay::ChannelSummary& channel : summary.channels) {
-    std::printf("  %-40s %-9s %8" PRId64 " samples, %" PRId64 " raises\n",
-                channel.name.c_str(), core::ChannelStateName(channel.final_state), channel.samples,
+    std::printf("  %-40s %-9s %8" PRId64 " samples, %" PRId64 " raises\n", channel.name.c_str(),
+                core::ChannelStateName(channel.final_state), channel.samples,
                 channel.alerts.raises());
   }
   std::printf("alerts raised during the learning run: %" PRId64 " (%s)\n", summary.alerts.raises(),
