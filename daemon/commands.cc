@@ -8,6 +8,7 @@ std::vector<Command> AddCommands(CLI::App& app) {
   commands.push_back(AddCheckConfigCommand(app));
   commands.push_back(AddReplayCommand(app));
   commands.push_back(AddRunCommand(app));
+  commands.push_back(AddLearnCommand(app));
   return commands;
 }
 

@@ -13,5 +13,6 @@ std::vector<Command> AddCommands(CLI::App& app);
 Command AddCheckConfigCommand(CLI::App& app);
 Command AddReplayCommand(CLI::App& app);
 Command AddRunCommand(CLI::App& app);
+Command AddLearnCommand(CLI::App& app);
 
 }  // namespace nightjar::daemon

@@ -47,6 +47,7 @@ class AdamOptimizer {
   std::size_t MemoryBytes() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   AdamOptions options_;
   std::int64_t step_count_ = 0;
   double beta1_power_ = 1.0;  // beta1^t, kept in double so 1 - beta^t stays accurate

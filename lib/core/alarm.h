@@ -148,6 +148,7 @@ class Alarm {
   const AlarmTiming& timing() const { return timing_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   // Moves the latched condition; returns which edge of it happened (ignores silencing).
   AlarmEdge TrackCondition(TimestampUs now, double ratio);
   // Ends shelving if it is due at `now`; returns the edge of the resulting return.

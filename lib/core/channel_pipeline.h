@@ -80,6 +80,7 @@ class ChannelPipeline {
   std::size_t MemoryBytes() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   struct Context {
     TimestampUs time;
     double value;

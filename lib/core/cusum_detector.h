@@ -86,6 +86,7 @@ class CusumDetector {
   double decision_interval() const { return h_ * sigma_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   double k_;
   double h_;
   double target_;

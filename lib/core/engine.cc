@@ -112,6 +112,35 @@ void Engine::AdvanceClock(TimestampUs now, std::vector<Alert>& out) {
   for (auto& channel : channels_) channel->CheckGap(now, out);
 }
 
+void Engine::SaveChannel(ChannelId id, std::vector<std::uint8_t>& out) const {
+  EncodeChannelState(*channels_[id], out);
+}
+
+Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> bytes,
+                           StateProblem* problem) {
+  if (problem != nullptr) *problem = StateProblem::kNone;
+  if (name.empty()) return Status::InvalidArgument("channel name is empty");
+  const ChannelOptions options = resolver_ ? resolver_(name) : options_.defaults;
+  if (Status valid = ValidateChannelOptions(options); !valid.ok()) {
+    return Status::InvalidArgument("channel '" + std::string(name) + "': " + valid.message());
+  }
+  // Decoded into a fresh pipeline so a bad checkpoint cannot leave a half-written channel.
+  auto restored = std::make_unique<ChannelPipeline>(std::string(name), options,
+                                                    ChannelSeed(options_.seed, name));
+  if (Status decoded = DecodeChannelState(bytes, *restored, problem); !decoded.ok()) {
+    return decoded;
+  }
+  EnsureWorkspace(options);
+  if (const std::optional<ChannelId> id = FindChannel(name)) {
+    channels_[*id] = std::move(restored);
+    return Status::Ok();
+  }
+  const auto id = static_cast<ChannelId>(channels_.size());
+  channels_.push_back(std::move(restored));
+  ids_.emplace(std::string(name), id);
+  return Status::Ok();
+}
+
 Result<ChannelPipeline*> Engine::Find(std::string_view name) {
   if (auto it = ids_.find(name); it != ids_.end()) return channels_[it->second].get();
   return Status::NotFound("no channel named '" + std::string(name) + "'");

@@ -11,6 +11,7 @@
 #include <cstdint>
 #include <memory>
 #include <optional>
+#include <span>
 #include <string>
 #include <string_view>
 #include <unordered_map>
@@ -18,6 +19,7 @@
 
 #include "core/alert.h"
 #include "core/channel_pipeline.h"
+#include "core/channel_state.h"
 #include "core/engine_options.h"
 #include "core/lstm_network.h"
 #include "core/status.h"
@@ -72,6 +74,15 @@ class Engine {
                 TimestampUs until);
   Status Unshelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
                   std::vector<Alert>& out);
+
+  // Checkpoints (core/channel_state.h). SaveChannel appends channel `id`'s state to
+  // `out`. LoadChannel restores channel `name` from a checkpoint under the options the
+  // resolver gives now: creates the channel if it does not exist, else replaces its
+  // state. On failure (*problem says why) the engine is unchanged: the channel, if it
+  // exists, keeps its state, and a new one starts fresh on its first sample.
+  void SaveChannel(ChannelId id, std::vector<std::uint8_t>& out) const;
+  Status LoadChannel(std::string_view name, std::span<const std::uint8_t> bytes,
+                     StateProblem* problem = nullptr);
 
   std::size_t channel_count() const { return channels_.size(); }
   const std::string& channel_name(ChannelId id) const { return channels_[id]->name(); }

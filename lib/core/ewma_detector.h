@@ -82,6 +82,7 @@ class EwmaDetector {
   double asymptotic_half_width() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   double lambda_;
   double limit_factor_;
   double target_;

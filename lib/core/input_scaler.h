@@ -42,6 +42,7 @@ class InputScaler {
   double scale() const { return scale_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   void RefreshScale(double stddev);
 
   InputScalerOptions options_;

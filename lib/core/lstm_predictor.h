@@ -117,6 +117,7 @@ class LstmPredictor {
   float last_loss() const { return last_loss_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   void Train(LstmWorkspace<float>& ws);
   Eigen::Index Slot(Eigen::Index back) const;  // ring column `back` entries before head_
 

@@ -82,6 +82,7 @@ class ResidualMonitor {
   double ewma_inflation() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   ResidualMonitorOptions options_;
   ResidualScale scale_;
   Lag1Autocorrelation autocorrelation_;

@@ -28,6 +28,7 @@ class ResidualScale {
   static constexpr std::int64_t kSettledSamples = 32;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   double alpha_;
   double floor_;
   double clip_;

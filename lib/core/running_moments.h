@@ -39,6 +39,7 @@ class RunningMoments {
   double population_variance() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   std::int64_t count_ = 0;
   double mean_ = 0.0;
   double sum_sq_dev_ = 0.0;  // S_n = sum (x_i - mean_n)^2, updated without cancellation
@@ -70,6 +71,7 @@ class ExponentialMoments {
   double stddev() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   double alpha_;
   std::int64_t count_ = 0;
   double mean_ = 0.0;
@@ -105,6 +107,7 @@ class Lag1Autocorrelation {
   double value() const;
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   double alpha_;
   std::int64_t count_ = 0;
   double previous_ = 0.0;

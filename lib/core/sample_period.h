@@ -68,6 +68,7 @@ class SamplePeriod {
   const SamplePeriodOptions& options() const { return options_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   // Median of intervals_ in seconds; reorders intervals_ in place (no allocation).
   double MedianSeconds();
 

@@ -92,6 +92,7 @@ class SensorHealth {
   const SensorHealthOptions& options() const { return options_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   SensorHealthOptions options_;
   double run_first_ = 0;  // first value of the present flatline run
   std::int64_t run_length_ = 0;

@@ -65,6 +65,7 @@ class TemplateMatcher {
   double last_distance() const { return last_distance_; }
 
  private:
+  friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   std::string name_;
   std::vector<double> template_;  // z-normalised
   std::vector<double> upper_;

@@ -131,6 +131,12 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
     }
     ids.push_back(*added);
   }
+  if (options.on_engine_ready) {
+    if (core::Status ready = options.on_engine_ready(engine); !ready.ok()) {
+      outcome.status = std::move(ready);
+      return outcome;
+    }
+  }
   // Alert channel name -> column, for the per-channel counts.
   std::unordered_map<std::string_view, std::uint32_t> column_of;
   for (std::size_t i = 0; i < names.size(); ++i) {
@@ -236,6 +242,8 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
     summary.out_of_order_samples += status.out_of_order;
   }
   summary.rejected_samples += engine.rejected_samples();
+  if (outcome.status.ok() && options.on_engine_done)
+    outcome.status = options.on_engine_done(engine);
   if (callbacks.on_progress) callbacks.on_progress(ReplayProgress{summary.rows, last_line});
   summary.wall_s = SecondsSince(wall_start);
   summary.cpu_s = ThreadCpuSeconds() - cpu_start;

@@ -44,6 +44,13 @@ struct ReplayOptions {
   ReaderOptions reader;                   // skip_bad_rows: count bad rows and go on
   core::EngineOptions engine;             // defaults and seed
   core::ChannelOptionsResolver resolver;  // per-channel options; empty: engine.defaults
+  // Called once the recording's channels exist, before the first row (e.g. to load
+  // checkpoints, state/state_directory.h), and once after the last row of a replay that
+  // did not stop early (e.g. to save them). A non-OK status stops the replay (or fails
+  // it at the end) and is returned. Shared by jobs: must be safe to call from several
+  // threads at once, each call with its own engine.
+  std::function<core::Status(core::Engine&)> on_engine_ready;
+  std::function<core::Status(const core::Engine&)> on_engine_done;
 };
 
 // One sample as the engine saw it, for reports that draw the forecast and its band.

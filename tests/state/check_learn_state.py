@@ -1,0 +1,174 @@
+#!/usr/bin/env python3
+"""End-to-end check of `nightjar learn` and `nightjar replay --state-in`.
+
+Usage: check_learn_state.py NIGHTJAR_BINARY WORK_DIR
+
+Writes a generated two-channel recording (1 Hz; a +4 step on the flow in the second
+half) into WORK_DIR, learns on its first half, replays the second half with and without
+the state and checks the output with the standard json module: with the state both
+channels are armed from the first sample (the step is raised within 20 s, although the
+second half alone is shorter than the warm-up), without it the channels stay learning
+and raise nothing; a flipped byte in one state file is named on stderr, that channel
+starts fresh, the other stays armed and the exit code is 0; a changed hidden size is
+reported as an options mismatch; a missing state folder exits 1; too short a recording
+for learn warns per channel and exits 0. Standard library only.
+"""
+import json
+import math
+import os
+import random
+import shutil
+import subprocess
+import sys
+
+CHANNELS = ["skid.flow", "skid.temp"]
+DAY = "2026-03-09T"
+STEP = (200, 320)  # rows of the second half with the flow 4 m3/h high
+
+failures = []
+
+
+def check(condition, what):
+    if not condition:
+        failures.append(what)
+        print("FAIL: " + what, file=sys.stderr)
+    return condition
+
+
+def stamp(second):
+    return "%s%02d:%02d:%02dZ" % (DAY, second // 3600, second // 60 % 60, second % 60)
+
+
+def write_recording(path, first, rows, step=None, seed=3):
+    rng = random.Random(seed + first)
+    lines = ["timestamp," + ",".join(CHANNELS)]
+    for i in range(first, first + rows):
+        flow = 50 + 5 * math.sin(2 * math.pi * i / 300) + rng.gauss(0, 0.3)
+        if step and step[0] <= i - first < step[1]:
+            flow += 4.0
+        temp = 40 + 0.5 * math.sin(2 * math.pi * i / 900) + rng.gauss(0, 0.05)
+        lines.append("%s,%.3f,%.3f" % (stamp(i), flow, temp))
+    with open(path, "w", encoding="utf-8") as f:
+        f.write("\n".join(lines) + "\n")
+    return path
+
+
+def write(path, text):
+    with open(path, "w", encoding="utf-8") as f:
+        f.write(text)
+    return path
+
+
+def run(nightjar, *args):
+    done = subprocess.run([nightjar, *args], capture_output=True, text=True, timeout=240)
+    return done.returncode, done.stdout, done.stderr
+
+
+def summary(out_dir):
+    with open(os.path.join(out_dir, "summary.json"), encoding="utf-8") as f:
+        return json.load(f)
+
+
+def alerts(out_dir):
+    with open(os.path.join(out_dir, "alerts.jsonl"), encoding="utf-8") as f:
+        return [json.loads(line) for line in f if line.strip()]
+
+
+def states(out_dir):
+    return {c["name"]: c["state"] for c in summary(out_dir)["channels"]}
+
+
+def main():
+    nightjar, work = sys.argv[1], sys.argv[2]
+    shutil.rmtree(work, ignore_errors=True)
+    os.makedirs(work)
+    # Warm-up 500 samples: the learning half (900 rows) arms, the replayed half (450) alone
+    # would not.
+    config = write(os.path.join(work, "small.yaml"),
+                   "defaults:\n  warmup_samples: 500\n  scaler: { warmup_samples: 60 }\n"
+                   "  predictor: { hidden_size: 8, window: 8 }\n")
+    good = write_recording(os.path.join(work, "good.csv"), 0, 900)
+    later = write_recording(os.path.join(work, "later.csv"), 900, 450, step=STEP)
+    state = os.path.join(work, "state")
+
+    code, out, err = run(nightjar, "learn", "--input", good, "--config", config,
+                         "--state-out", state)
+    check(code == 0, "learn exit %d: %s" % (code, err))
+    for name in CHANNELS:
+        check(os.path.isfile(os.path.join(state, name + ".njstate")), "state file for " + name)
+        check(any(name in line and "armed" in line for line in out.splitlines()),
+              "learn says %s is armed: %r" % (name, out))
+    check(not [f for f in os.listdir(state) if not f.endswith(".njstate")],
+          "no temp files left: %r" % os.listdir(state))
+
+    # Without state: the half is too short to arm, nothing is raised.
+    fresh = os.path.join(work, "fresh")
+    code, _, err = run(nightjar, "replay", "--input", later, "--config", config, "--out", fresh)
+    check(code == 0, "fresh replay exit %d: %s" % (code, err))
+    check(set(states(fresh).values()) == {"learning"}, "fresh replay stays learning: %r"
+          % states(fresh))
+    check(not [a for a in alerts(fresh) if a["kind"] == "anomaly"], "fresh replay raises nothing")
+
+    # With state: armed from the first sample, the step is raised at once.
+    warm = os.path.join(work, "warm")
+    code, _, err = run(nightjar, "replay", "--input", later, "--config", config, "--out", warm,
+                       "--state-in", state)
+    check(code == 0, "replay --state-in exit %d: %s" % (code, err))
+    check("2 channels loaded" in err, "load summary on stderr: %r" % err)
+    check(set(states(warm).values()) <= {"armed", "in_alarm"}, "armed: %r" % states(warm))
+    raises = [a for a in alerts(warm) if a["kind"] == "anomaly" and a["phase"] == "raise"
+              and a["channel"] == "skid.flow"]
+    first_step = stamp(900 + STEP[0])
+    check(raises and first_step <= raises[0]["ts"][:19] + "Z" <= stamp(900 + STEP[0] + 20),
+          "step raised within 20 s of %s: %r" % (first_step, raises[:1]))
+
+    # A flipped byte: named on stderr, that channel starts fresh, the replay still runs.
+    damaged = os.path.join(work, "damaged")
+    shutil.copytree(state, damaged)
+    flow_file = os.path.join(damaged, "skid.flow.njstate")
+    with open(flow_file, "r+b") as f:
+        f.seek(os.path.getsize(flow_file) // 2)
+        byte = f.read(1)
+        f.seek(-1, os.SEEK_CUR)
+        f.write(bytes([byte[0] ^ 0x40]))
+    out_damaged = os.path.join(work, "out_damaged")
+    code, _, err = run(nightjar, "replay", "--input", later, "--config", config, "--out",
+                       out_damaged, "--state-in", damaged)
+    check(code == 0, "damaged state still replays, exit %d: %s" % (code, err))
+    check(flow_file in err and "corrupt" in err, "corrupt file named on stderr: %r" % err)
+    check("1 channel loaded" in err and "0 with no file, 1 refused" in err,
+          "load summary counts the damaged file once: %r" % err)
+    got = states(out_damaged)
+    check(got.get("skid.flow") == "learning" and got.get("skid.temp") in ("armed", "in_alarm"),
+          "damaged channel fresh, other armed: %r" % got)
+
+    # A changed model is an options mismatch, not corruption.
+    bigger = write(os.path.join(work, "bigger.yaml"),
+                   "defaults:\n  warmup_samples: 500\n  scaler: { warmup_samples: 60 }\n"
+                   "  predictor: { hidden_size: 16, window: 8 }\n")
+    code, _, err = run(nightjar, "replay", "--input", later, "--config", bigger, "--out",
+                       os.path.join(work, "out_bigger"), "--state-in", state)
+    check(code == 0 and err.count("options mismatch") == 2, "options mismatch x2: %r" % err)
+
+    # A state folder that is not there fails the recording.
+    code, _, err = run(nightjar, "replay", "--input", later, "--out", os.path.join(work, "x"),
+                       "--state-in", os.path.join(work, "no_such_state"))
+    check(code == 1 and "no_such_state" in err, "missing folder exit %d: %r" % (code, err))
+
+    # Too short to arm: a warning per channel, still exit 0 and the state written.
+    short = write_recording(os.path.join(work, "short.csv"), 0, 200)
+    code, _, err = run(nightjar, "learn", "--input", short, "--config", config, "--state-out",
+                       os.path.join(work, "short_state"))
+    check(code == 0 and err.count("still learning") == 2, "short learn warns: %d %r" % (code, err))
+    check(len(os.listdir(os.path.join(work, "short_state"))) == 2, "short learn wrote the state")
+
+    # Usage: --state-out is required.
+    code, _, err = run(nightjar, "learn", "--input", good)
+    check(code == 2 and "--state-out" in err, "usage error exit %d: %r" % (code, err))
+
+    print("%d passed, %d failed" % (0 if failures else 1, 1 if failures else 0))
+    return 1 if failures else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
