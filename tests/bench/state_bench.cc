@@ -7,6 +7,10 @@
 // divided by one Engine::Process training step of the same channel, timed in the same
 // run right after (CPU time, 2000 steps): how many samples' worth of training a
 // checkpoint costs.
+//
+// Measured 2026-12-02 (Release, NIGHTJAR_NATIVE, 2 shared cores at load ~10, CPU time,
+// 3 repetitions): 63 524 bytes/channel; save + load 86 us, 11.3 training steps of 7.7 us;
+// save alone 34 us (1.75 GB/s).
 #include <benchmark/benchmark.h>
 
 #include <chrono>
