@@ -7,6 +7,7 @@ std::vector<Command> AddCommands(CLI::App& app) {
   // One line per subcommand, e.g. commands.push_back(AddReplayCommand(app));
   commands.push_back(AddCheckConfigCommand(app));
   commands.push_back(AddReplayCommand(app));
+  commands.push_back(AddTuneCommand(app));
   return commands;
 }
 

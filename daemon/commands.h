@@ -12,5 +12,6 @@ namespace nightjar::daemon {
 std::vector<Command> AddCommands(CLI::App& app);
 Command AddCheckConfigCommand(CLI::App& app);
 Command AddReplayCommand(CLI::App& app);
+Command AddTuneCommand(CLI::App& app);
 
 }  // namespace nightjar::daemon

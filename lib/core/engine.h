@@ -20,6 +20,7 @@
 #include "core/channel_pipeline.h"
 #include "core/engine_options.h"
 #include "core/lstm_network.h"
+#include "core/residual_tap.h"
 #include "core/status.h"
 #include "core/threshold_design.h"
 #include "core/time.h"
@@ -63,6 +64,10 @@ class Engine {
   Status Unshelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
                   std::vector<Alert>& out);
 
+  // Every channel, present and future, reports its charted residuals to `tap` (nullptr:
+  // none). Borrowed: it must outlive the engine or be unset first.
+  void set_residual_tap(ResidualTap* tap);
+
   std::size_t channel_count() const { return channels_.size(); }
   const std::string& channel_name(ChannelId id) const { return channels_[id]->name(); }
   ChannelStatus channel_status(ChannelId id) const { return channels_[id]->status(); }
@@ -91,6 +96,7 @@ class Engine {
   bool clock_started_ = false;
   TimestampUs clock_ = 0;
   std::int64_t rejected_samples_ = 0;
+  ResidualTap* tap_ = nullptr;
 };
 
 // Deterministic 64-bit seed for a channel from the engine seed and the channel name.

@@ -33,6 +33,7 @@
 #include "core/channel_pipeline.h"
 #include "core/engine.h"
 #include "core/engine_options.h"
+#include "core/residual_tap.h"
 #include "core/status.h"
 #include "core/time.h"
 #include "replay/recording_reader.h"
@@ -44,6 +45,9 @@ struct ReplayOptions {
   ReaderOptions reader;                   // skip_bad_rows: count bad rows and go on
   core::EngineOptions engine;             // defaults and seed
   core::ChannelOptionsResolver resolver;  // per-channel options; empty: engine.defaults
+  // Borrowed; when set, every channel reports its charted residuals to it (ChannelId =
+  // column index). Not shared between RunReplayJobs workers: use with RunReplay only.
+  core::ResidualTap* residual_tap = nullptr;
 };
 
 // One sample as the engine saw it, for reports that draw the forecast and its band.
