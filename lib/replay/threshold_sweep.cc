@@ -111,6 +111,7 @@ struct Lane {
   core::Alarm alarm;
   bool held_out = false;
   int closed_loop_steps = 0;
+  bool cleared_now = false;  // the alarm cleared in this sample (shared steps)
   core::Status status;
   std::vector<core::TimestampUs> raises;
 };
@@ -154,6 +155,63 @@ inline void Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
   lane.closed_loop_steps = suspect ? lane.closed_loop_steps + 1 : 0;
 }
 
+// Step for lanes sharing `monitor` (their trust in this sample agrees): one Observe, then
+// each lane's alarm and bookkeeping. A clear in any lane resets only that lane's charts,
+// so the group forks (`fork`) before the reset.
+template <typename Fork, typename GroupT>
+void StepShared(core::ResidualMonitor& monitor, const std::vector<std::size_t>& members,
+                std::vector<Lane>& lanes, const ChannelResidualCache& channel, std::size_t i,
+                core::ThresholdDesigner& designer, const Fork& fork, GroupT& group) {
+  const core::TimestampUs time = channel.times[i];
+  const double residual = channel.residuals[i];
+  const std::uint8_t flags = channel.flags[i];
+  Lane& first = lanes[members.front()];
+  const bool flatline = (flags & kCachedFlatline) != 0;
+  const bool trusted = (!first.alarm.active() || first.held_out) && !flatline;
+  const bool gate_open = trusted && (!monitor.scale_settled() ||
+                                     std::abs(residual / monitor.sigma()) < kLearnGateSigmas);
+  const core::ResidualReading reading = monitor.Observe(residual, gate_open);
+  const bool armed = monitor.armed();
+  if (armed) {
+    bool cleared = false;
+    for (const std::size_t l : members) {
+      Lane& lane = lanes[l];
+      const core::AlarmEdge edge = lane.alarm.Update(time, reading.ratio);
+      if (edge == core::AlarmEdge::kRaise) lane.raises.push_back(time);
+      lane.cleared_now = edge == core::AlarmEdge::kClear;
+      cleared = cleared || lane.cleared_now;
+    }
+    if (cleared) {
+      fork(group);
+      for (const std::size_t l : members) {
+        if (lanes[l].cleared_now) lanes[l].monitor.ResetCharts();
+      }
+    }
+  } else {
+    if ((flags & kCachedTailWindow) != 0) monitor.StartTailWindow();
+    if ((flags & kCachedArmed) != 0) {
+      core::Result<core::Thresholds> thresholds =
+          designer.Design(first.options.thresholds, channel.armed_period_s);
+      if (thresholds.ok()) {
+        monitor.Arm(*thresholds);
+      } else {
+        for (const std::size_t l : members) {
+          if (lanes[l].status.ok()) lanes[l].status = thresholds.status();
+        }
+      }
+    }
+  }
+  for (const std::size_t l : members) {
+    Lane& lane = lanes[l];
+    const bool in_alarm = lane.alarm.active();
+    if (!in_alarm && std::abs(reading.z) < kSuspectSigmas) lane.held_out = false;
+    if (lane.closed_loop_steps >= kMaxClosedLoopSteps) lane.held_out = true;
+    const bool suspect =
+        armed && !lane.held_out && (in_alarm || std::abs(reading.z) >= kSuspectSigmas);
+    lane.closed_loop_steps = suspect ? lane.closed_loop_steps + 1 : 0;
+  }
+}
+
 }  // namespace
 
 std::vector<core::Result<std::vector<core::TimestampUs>>> EvaluateSettings(
@@ -174,11 +232,57 @@ std::vector<core::Result<std::vector<core::TimestampUs>>> EvaluateSettings(
     lane_of[s] = lanes.size();
     lanes.emplace_back(options);
   }
+  // Lanes that differ only in the on-delay have the same charts: they share one monitor
+  // (a group) until their alarms first disagree on whether a sample may be learnt or a
+  // chart is reset; then each takes a copy of the shared monitor and goes on alone.
+  struct Group {
+    std::vector<std::size_t> members;
+    core::ResidualMonitor monitor;
+    bool shared = true;
+  };
+  std::vector<Group> groups;
+  for (std::size_t l = 0; l < lanes.size(); ++l) {
+    const core::ThresholdOptions& mine = lanes[l].options.thresholds;
+    auto found = std::find_if(groups.begin(), groups.end(), [&](const Group& group) {
+      const core::ThresholdOptions& theirs = lanes[group.members.front()].options.thresholds;
+      return theirs.false_alarms_per_day == mine.false_alarms_per_day &&
+             theirs.cusum_k == mine.cusum_k && theirs.ewma_lambda == mine.ewma_lambda;
+    });
+    if (found == groups.end()) {
+      groups.push_back(Group{{}, core::ResidualMonitor(lanes[l].options.residual), true});
+      found = groups.end() - 1;
+    }
+    found->members.push_back(l);
+  }
+  const auto fork = [&lanes](Group& group) {
+    for (const std::size_t l : group.members) lanes[l].monitor = group.monitor;
+    group.shared = false;
+  };
+
   // All lanes advance together, sample by sample: their chains of dependent divisions
   // and square roots are independent, so the CPU overlaps them.
   const std::size_t n = channel.times.size();
   for (std::size_t i = 0; i < n; ++i) {
-    for (Lane& lane : lanes) Step(lane, channel, i, designer);
+    for (Group& group : groups) {
+      if (group.shared) {
+        const bool flatline = (channel.flags[i] & kCachedFlatline) != 0;
+        const auto trusts = [&](const Lane& lane) {
+          return (!lane.alarm.active() || lane.held_out) && !flatline;
+        };
+        const bool trusted = trusts(lanes[group.members.front()]);
+        for (const std::size_t l : group.members) {
+          if (trusts(lanes[l]) != trusted) {
+            fork(group);
+            break;
+          }
+        }
+      }
+      if (!group.shared) {
+        for (const std::size_t l : group.members) Step(lanes[l], channel, i, designer);
+        continue;
+      }
+      StepShared(group.monitor, group.members, lanes, channel, i, designer, fork, group);
+    }
   }
   results.reserve(settings.size());
   for (std::size_t s = 0; s < settings.size(); ++s) {
