@@ -9,6 +9,7 @@ std::vector<Command> AddCommands(CLI::App& app) {
   commands.push_back(AddReplayCommand(app));
   commands.push_back(AddRunCommand(app));
   commands.push_back(AddLearnCommand(app));
+  commands.push_back(AddTuneCommand(app));
   return commands;
 }
 

@@ -14,5 +14,6 @@ Command AddCheckConfigCommand(CLI::App& app);
 Command AddReplayCommand(CLI::App& app);
 Command AddRunCommand(CLI::App& app);
 Command AddLearnCommand(CLI::App& app);
+Command AddTuneCommand(CLI::App& app);
 
 }  // namespace nightjar::daemon

@@ -197,12 +197,27 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   counters_.last_ratio = reading.ratio;
   counters_.last_detector = reading.detector;
 
+  ResidualTapPoint tapped;
   if (monitor_.armed()) {
     UpdateAnomalyAlarm(reading, context, out);
   } else {
     ++learnt_samples_;
-    if (learnt_samples_ == options_.warmup_samples / 2) monitor_.StartTailWindow();
-    if (learnt_samples_ >= options_.warmup_samples) TryArm(designer);
+    if (learnt_samples_ == options_.warmup_samples / 2) {
+      monitor_.StartTailWindow();
+      tapped.tail_window_started = true;
+    }
+    if (learnt_samples_ >= options_.warmup_samples) {
+      TryArm(designer);
+      tapped.armed = monitor_.armed();
+    }
+  }
+  if (tap_ != nullptr) {
+    tapped.channel = tap_id_;
+    tapped.time = time;
+    tapped.residual = residual;
+    tapped.flatline = flatline;
+    tapped.sample_period_s = tapped.armed ? period_.period_s() : 0.0;
+    tap_->OnResidual(tapped);
   }
 
   // While in alarm, and for any sample far off the forecast, the model is not fed the

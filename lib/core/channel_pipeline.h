@@ -17,6 +17,7 @@
 #include "core/input_scaler.h"
 #include "core/lstm_predictor.h"
 #include "core/residual_monitor.h"
+#include "core/residual_tap.h"
 #include "core/running_moments.h"
 #include "core/sample_period.h"
 #include "core/sensor_health.h"
@@ -75,6 +76,12 @@ class ChannelPipeline {
   Status Unshelve(AlarmCondition condition, TimestampUs now, std::vector<Alert>& out);
   const Alarm& alarm(AlarmCondition condition) const;
 
+  // Reports each charted residual to `tap` (nullptr: none) as channel `id`. Borrowed.
+  void set_residual_tap(ResidualTap* tap, std::uint32_t id) {
+    tap_ = tap;
+    tap_id_ = id;
+  }
+
   ChannelStatus status() const;
   // Heap bytes owned by this channel (model, optimiser state, rings).
   std::size_t MemoryBytes() const;
@@ -125,6 +132,8 @@ class ChannelPipeline {
   std::int64_t learnt_samples_ = 0;  // accepted samples seen while learning
   ResidualReading last_reading_;
   ChannelStatus counters_;
+  ResidualTap* tap_ = nullptr;
+  std::uint32_t tap_id_ = 0;
 };
 
 }  // namespace nightjar::core

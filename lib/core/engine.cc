@@ -46,6 +46,7 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
                                                         ChannelSeed(options_.seed, name)));
   options_of_.push_back(options);
   ids_.emplace(std::string(name), id);
+  channels_.back()->set_residual_tap(tap_, id);
   return id;
 }
 
@@ -80,6 +81,13 @@ void Engine::EnsureWorkspace(const ChannelOptions& options) {
   workspace_window_ = std::max(workspace_window_, window);
   workspace_ = std::make_unique<LstmWorkspace<float>>(workspace_inputs_, workspace_hidden_,
                                                       workspace_window_);
+}
+
+void Engine::set_residual_tap(ResidualTap* tap) {
+  tap_ = tap;
+  for (std::size_t i = 0; i < channels_.size(); ++i) {
+    channels_[i]->set_residual_tap(tap, static_cast<ChannelId>(i));
+  }
 }
 
 std::optional<ChannelId> Engine::FindChannel(std::string_view name) const {

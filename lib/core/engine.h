@@ -22,6 +22,7 @@
 #include "core/channel_state.h"
 #include "core/engine_options.h"
 #include "core/lstm_network.h"
+#include "core/residual_tap.h"
 #include "core/status.h"
 #include "core/threshold_design.h"
 #include "core/time.h"
@@ -83,6 +84,9 @@ class Engine {
   void SaveChannel(ChannelId id, std::vector<std::uint8_t>& out) const;
   Status LoadChannel(std::string_view name, std::span<const std::uint8_t> bytes,
                      StateProblem* problem = nullptr);
+  // Every channel, present and future, reports its charted residuals to `tap` (nullptr:
+  // none). Borrowed: it must outlive the engine or be unset first.
+  void set_residual_tap(ResidualTap* tap);
 
   std::size_t channel_count() const { return channels_.size(); }
   const std::string& channel_name(ChannelId id) const { return channels_[id]->name(); }
@@ -113,6 +117,7 @@ class Engine {
   bool clock_started_ = false;
   TimestampUs clock_ = 0;
   std::int64_t rejected_samples_ = 0;
+  ResidualTap* tap_ = nullptr;
 };
 
 // Deterministic 64-bit seed for a channel from the engine seed and the channel name.

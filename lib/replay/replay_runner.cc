@@ -117,6 +117,7 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
   RecordingReader& reader = **opened;
 
   core::Engine engine(options.engine, options.resolver);
+  engine.set_residual_tap(options.residual_tap);
   const std::vector<std::string>& names = reader.channels();
   std::vector<core::ChannelId> ids;
   ids.reserve(names.size());

@@ -33,6 +33,7 @@
 #include "core/channel_pipeline.h"
 #include "core/engine.h"
 #include "core/engine_options.h"
+#include "core/residual_tap.h"
 #include "core/status.h"
 #include "core/time.h"
 #include "replay/recording_reader.h"
@@ -51,6 +52,9 @@ struct ReplayOptions {
   // threads at once, each call with its own engine.
   std::function<core::Status(core::Engine&)> on_engine_ready;
   std::function<core::Status(const core::Engine&)> on_engine_done;
+  // Borrowed; when set, every channel reports its charted residuals to it (ChannelId =
+  // column index). Not shared between RunReplayJobs workers: use with RunReplay only.
+  core::ResidualTap* residual_tap = nullptr;
 };
 
 // One sample as the engine saw it, for reports that draw the forecast and its band.

@@ -1,0 +1,71 @@
+#include "replay/residual_cache.h"
+
+#include <utility>
+
+#include "core/residual_tap.h"
+
+namespace nightjar::replay {
+
+namespace {
+
+class Recorder final : public core::ResidualTap {
+ public:
+  explicit Recorder(std::vector<ChannelResidualCache>& channels) : channels_(channels) {}
+
+  void OnResidual(const core::ResidualTapPoint& point) override {
+    if (point.channel >= channels_.size()) channels_.resize(point.channel + 1);
+    ChannelResidualCache& channel = channels_[point.channel];
+    std::uint8_t flags = 0;
+    if (point.flatline) flags |= kCachedFlatline;
+    if (point.tail_window_started) flags |= kCachedTailWindow;
+    if (point.armed) {
+      flags |= kCachedArmed;
+      channel.armed_period_s = point.sample_period_s;
+    }
+    channel.times.push_back(point.time);
+    channel.residuals.push_back(point.residual);
+    channel.flags.push_back(flags);
+  }
+
+ private:
+  std::vector<ChannelResidualCache>& channels_;
+};
+
+}  // namespace
+
+core::Result<ResidualCache> BuildResidualCache(const std::string& path,
+                                               const ReplayOptions& options) {
+  ResidualCache cache;
+  cache.input = path;
+  Recorder recorder(cache.channels);
+  ReplayOptions tapped = options;
+  tapped.residual_tap = &recorder;
+  std::vector<std::pair<std::string, core::TimestampUs>> anomaly_raises;
+  ReplayCallbacks callbacks;
+  callbacks.on_alert = [&](const core::Alert& alert) {
+    if (alert.phase != core::AlertPhase::kRaise) return core::Status::Ok();
+    if (alert.kind == core::AlertKind::kAnomaly) {
+      anomaly_raises.emplace_back(alert.channel, alert.time);
+    } else if (alert.kind == core::AlertKind::kSensor) {
+      cache.fixed_raises.push_back({alert.time, alert.channel});
+    }
+    return core::Status::Ok();
+  };
+  ReplayOutcome outcome = RunReplay(path, tapped, callbacks);
+  if (!outcome.status.ok()) return outcome.status;
+
+  cache.channels.resize(outcome.summary.channels.size());
+  for (std::size_t i = 0; i < cache.channels.size(); ++i) {
+    ChannelResidualCache& channel = cache.channels[i];
+    channel.name = outcome.summary.channels[i].name;
+    channel.options = options.resolver ? options.resolver(channel.name) : options.engine.defaults;
+    for (const auto& [name, time] : anomaly_raises) {
+      if (name == channel.name) channel.base_anomaly_raises.push_back(time);
+    }
+  }
+  cache.duration_s = outcome.summary.duration_s();
+  cache.summary = std::move(outcome.summary);
+  return cache;
+}
+
+}  // namespace nightjar::replay
