@@ -35,7 +35,8 @@ int main(int argc, char** argv) {
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& error) {
-    return app.exit(error);
+    // --help and --version print and succeed; every real parse error is a usage error.
+    return app.exit(error) == 0 ? 0 : 2;
   }
 
   if (version->parsed()) return PrintVersion();

@@ -5,14 +5,15 @@
 //                   [--no-labels] [--skip-bad-rows] [--jobs N] [--seed N] [--config FILE]
 //                   [--state-in DIR]
 //
-// Writes DIR/alerts.jsonl (one JSON object per raise or clear, time order) and
-// DIR/summary.json per recording; with several recordings each goes to DIR/<name>/ and
-// they run in parallel, one engine per recording on its own thread (--jobs, default the
-// number of recordings, at most the number of hardware threads). Prints a summary per
-// recording: alerts per channel and kind, the alarm rate against operator-load guidance,
-// the worst 10-minute window and floods, and, with labels, which labelled windows got a
-// raise. A labels file <name>.labels.csv beside a recording is used unless --labels
-// names others (one per --input, in order) or --no-labels is given.
+// Writes DIR/alerts.jsonl (one JSON object per raise or clear, time order),
+// DIR/summary.json and DIR/report.html (a self-contained page of charts) per recording; with
+// several recordings each goes to DIR/<name>/ and they run in parallel, one engine per recording on
+// its own thread (--jobs, default the number of recordings, at most the number of hardware
+// threads). Prints a summary per recording: alerts per channel and kind, the alarm rate against
+// operator-load guidance, the worst 10-minute window and floods, and, with labels, which labelled
+// windows got a raise and one score row each for nightjar, "next = last" and static limits. A
+// labels file <name>.labels.csv beside a recording is used unless --labels names others (one per
+// --input, in order) or --no-labels is given.
 //
 // With --state-in, channels whose checkpoint is in DIR (written by `nightjar learn` or
 // the daemon) start from it, armed at once; a corrupt, truncated or mismatched file is
@@ -243,8 +244,8 @@ int RunReplayCommand(const ReplayFlags& flags) {
     std::fputs(replay::FormatReportText(report).c_str(), stdout);
     const replay::ReplaySummary& summary = report.summary;
     const std::int64_t lines = summary.alerts.raises() + summary.alerts.clears();
-    std::printf("wrote %s/alerts.jsonl (%" PRId64 " lines) and %s/summary.json\n",
-                jobs[i].out_dir.c_str(), lines, jobs[i].out_dir.c_str());
+    std::printf("wrote %s/alerts.jsonl (%" PRId64 " lines), %s/summary.json and %s/report.html\n",
+                jobs[i].out_dir.c_str(), lines, jobs[i].out_dir.c_str(), jobs[i].out_dir.c_str());
     if (!report.status.ok()) {
       ++failed;
       std::fflush(stdout);
@@ -269,9 +270,10 @@ Command AddReplayCommand(CLI::App& app) {
   sub->add_option("-i,--input", flags->inputs,
                   "Recording to replay (CSV, plain or .gz; format in replay_data/FORMAT.md); "
                   "repeat for several, run in parallel");
-  sub->add_option("-o,--out", flags->out_dir,
-                  "Output folder: alerts.jsonl and summary.json (per recording in <name>/ when "
-                  "there are several)");
+  sub->add_option(
+      "-o,--out", flags->out_dir,
+      "Output folder: alerts.jsonl, summary.json, report.html (per recording in <name>/ when "
+      "there are several)");
   sub->add_option("--labels", flags->labels,
                   "Labels file for the --input in the same position (default: <name>.labels.csv "
                   "beside the recording, if present)");

@@ -1,6 +1,7 @@
 #include "core/timestamp_format.h"
 
 #include <array>
+#include <cstddef>
 #include <cstdio>
 
 namespace nightjar::core {
@@ -9,6 +10,28 @@ namespace {
 constexpr std::int64_t kSecondsPerDayInt = 86'400;
 constexpr std::int64_t kMicrosPerDay = kSecondsPerDayInt * kMicrosPerSecond;
 constexpr std::int64_t kMicrosPerMilli = 1'000;
+constexpr std::size_t kMicroDigits = 6;
+constexpr std::size_t kMaxFractionDigits = 9;
+
+bool IsDigit(char c) { return c >= '0' && c <= '9'; }
+
+// Reads `count` digits at text[pos]; false if any is not a digit or text is too short.
+bool ReadDigits(std::string_view text, std::size_t pos, std::size_t count, int* value) {
+  if (pos + count > text.size()) return false;
+  int v = 0;
+  for (std::size_t i = pos; i < pos + count; ++i) {
+    if (!IsDigit(text[i])) return false;
+    v = v * 10 + (text[i] - '0');
+  }
+  *value = v;
+  return true;
+}
+
+int DaysInMonth(int year, int month) {
+  static constexpr std::array<int, 12> kDays = {31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
+  const bool leap = (year % 4 == 0 && year % 100 != 0) || year % 400 == 0;
+  return month == 2 && leap ? 29 : kDays[static_cast<std::size_t>(month - 1)];
+}
 
 }  // namespace
 
@@ -74,6 +97,49 @@ void AppendUtcTimestamp(TimestampUs t, SecondFraction fraction, std::string* out
   if (more > 0) n += more;
   out->append(buffer.data(), static_cast<std::size_t>(n));
   out->push_back('Z');
+}
+
+Result<TimestampUs> ParseUtcTimestamp(std::string_view text) {
+  const auto bad = [](const char* why) { return Status::InvalidArgument(why); };
+  int year = 0;
+  int month = 0;
+  int day = 0;
+  int hour = 0;
+  int minute = 0;
+  int second = 0;
+  // Fixed layout of the first 19 characters: YYYY-MM-DDTHH:MM:SS.
+  if (text.size() < 19 || !ReadDigits(text, 0, 4, &year) || text[4] != '-' ||
+      !ReadDigits(text, 5, 2, &month) || text[7] != '-' || !ReadDigits(text, 8, 2, &day) ||
+      text[10] != 'T' || !ReadDigits(text, 11, 2, &hour) || text[13] != ':' ||
+      !ReadDigits(text, 14, 2, &minute) || text[16] != ':' || !ReadDigits(text, 17, 2, &second)) {
+    return bad("want YYYY-MM-DDTHH:MM:SS[.fff]Z or ...+00:00");
+  }
+  if (month < 1 || month > 12) return bad("month out of range 01..12");
+  if (day < 1 || day > DaysInMonth(year, month)) return bad("no such day in that month");
+  if (hour > 23) return bad("hour out of range 00..23");
+  if (minute > 59) return bad("minute out of range 00..59");
+  if (second > 59) return bad("second out of range 00..59 (no leap seconds)");
+
+  std::size_t pos = 19;
+  std::int64_t micros = 0;
+  if (pos < text.size() && text[pos] == '.') {
+    ++pos;
+    std::size_t digits = 0;
+    while (pos < text.size() && IsDigit(text[pos])) {
+      if (++digits > kMaxFractionDigits) return bad("more than 9 fraction digits");
+      if (digits <= kMicroDigits) micros = micros * 10 + (text[pos] - '0');  // truncates
+      ++pos;
+    }
+    if (digits == 0) return bad("no digits after '.'");
+    for (std::size_t i = digits; i < kMicroDigits; ++i) micros *= 10;
+  }
+  const std::string_view zone = text.substr(pos);
+  if (zone.empty()) return bad("no zone: end with Z or +00:00 (times are UTC)");
+  if (zone != "Z" && zone != "+00:00") return bad("zone must be Z or +00:00 (times are UTC)");
+
+  const std::int64_t seconds = DaysFromCivil(year, month, day) * kSecondsPerDayInt +
+                               std::int64_t{hour} * 3600 + std::int64_t{minute} * 60 + second;
+  return seconds * kMicrosPerSecond + micros;
 }
 
 std::string FormatUtcTimestamp(TimestampUs t, SecondFraction fraction) {

@@ -1,10 +1,11 @@
-// ISO-8601 UTC text for core::TimestampUs, and the civil-date arithmetic behind it.
+// ISO-8601 UTC text <-> core::TimestampUs, and the civil-date arithmetic behind it.
 //
-// Alerts leave the core as JSON (alert_json.h) and recordings name their instants in
-// ISO-8601 UTC, so the formatting lives here, beside the time type, for every module
-// to share. Dates are proleptic Gregorian; POSIX time has no leap seconds. The date
-// conversions are H. Hinnant's days_from_civil / civil_from_days algorithms ("chrono-
-// Compatible Low-Level Date Algorithms"), exact for every 64-bit day count used here.
+// Alerts leave the core as JSON (alert_json.h), and recordings, label files and MQTT
+// payloads name their instants in ISO-8601 UTC, so the formatting and the one parser
+// live here, beside the time type, for every module to share. Dates are proleptic Gregorian; POSIX
+// time has no leap seconds. The date conversions are H. Hinnant's days_from_civil / civil_from_days
+// algorithms ("chrono- Compatible Low-Level Date Algorithms"), exact for every 64-bit day count
+// used here.
 //
 // Thread-safety: pure functions, safe from any thread. Ownership: plain values.
 // No allocation except the returned or appended string.
@@ -12,7 +13,9 @@
 
 #include <cstdint>
 #include <string>
+#include <string_view>
 
+#include "core/status.h"
 #include "core/time.h"
 
 namespace nightjar::core {
@@ -44,5 +47,22 @@ std::string FormatUtcTimestamp(TimestampUs t, SecondFraction fraction);
 
 // Appends the same text to *out.
 void AppendUtcTimestamp(TimestampUs t, SecondFraction fraction, std::string* out);
+
+// Parses an RFC 3339 / ISO-8601 UTC instant. Accepted text, and nothing else:
+//
+//   YYYY-MM-DDTHH:MM:SS[.f...]Z        e.g. 2026-03-09T10:54:34Z, 2026-03-09T10:54:34.25Z
+//   YYYY-MM-DDTHH:MM:SS[.f...]+00:00   the same instant with an explicit zero offset
+//
+// Fields have exactly the digits shown; the year is 0000..9999 (proleptic Gregorian),
+// the date must exist, hours 00..23, minutes and seconds 00..59 (POSIX time has no leap
+// seconds, so :60 is rejected). The fraction has 1 to 9 digits (up to nanoseconds, as
+// many clocks write them); digits past the sixth are TRUNCATED, never rounded, so the
+// result is the whole microsecond at or before the instant written (".1234569" ->
+// 123456 us) and a time never moves into the next second. Lowercase t/z, a space for T,
+// other offsets and a missing zone are errors: an unknown zone must not be guessed at.
+//
+// On failure InvalidArgument whose message is only the reason (e.g. "no such day in that
+// month"), neither quoting the text nor naming where it came from: callers add both.
+Result<TimestampUs> ParseUtcTimestamp(std::string_view text);
 
 }  // namespace nightjar::core

@@ -1,6 +1,5 @@
 #include "mqtt/payload.h"
 
-#include <array>
 #include <charconv>
 #include <cmath>
 #include <cstdint>
@@ -25,7 +24,6 @@ constexpr std::int64_t kMaxEpochSeconds = 253'402'300'799;
 bool IsSpace(char c) {
   return c == ' ' || c == '\t' || c == '\r' || c == '\n' || c == '\f' || c == '\v';
 }
-bool IsDigit(char c) { return c >= '0' && c <= '9'; }
 
 std::string_view Trim(std::string_view text) {
   while (!text.empty() && IsSpace(text.front())) text.remove_prefix(1);
@@ -338,61 +336,12 @@ core::Result<double> ParseNumberText(std::string_view text) {
 }
 
 core::Result<core::TimestampUs> ParseUtcTimestamp(std::string_view text) {
-  const auto bad = [text](std::string_view why) {
-    return core::Status::InvalidArgument("bad timestamp " + Quoted(text) + ": " + std::string(why));
-  };
-  const auto digits = [text](std::size_t pos, std::size_t count, int* value) {
-    if (pos + count > text.size()) return false;
-    int v = 0;
-    for (std::size_t i = pos; i < pos + count; ++i) {
-      if (!IsDigit(text[i])) return false;
-      v = v * 10 + (text[i] - '0');
-    }
-    *value = v;
-    return true;
-  };
-  int year = 0;
-  int month = 0;
-  int day = 0;
-  int hour = 0;
-  int minute = 0;
-  int second = 0;
-  if (!(digits(0, 4, &year) && text.size() > 4 && text[4] == '-' && digits(5, 2, &month) &&
-        text.size() > 7 && text[7] == '-' && digits(8, 2, &day) && text.size() > 10 &&
-        text[10] == 'T' && digits(11, 2, &hour) && text.size() > 13 && text[13] == ':' &&
-        digits(14, 2, &minute) && text.size() > 16 && text[16] == ':' && digits(17, 2, &second))) {
-    return bad("want YYYY-MM-DDTHH:MM:SS[.fff]Z or ...+00:00");
+  core::Result<core::TimestampUs> parsed = core::ParseUtcTimestamp(text);
+  if (!parsed.ok()) {
+    return core::Status::InvalidArgument("bad timestamp " + Quoted(text) + ": " +
+                                         parsed.status().message());
   }
-  constexpr std::array<int, 12> kDays = {31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
-  const bool leap = (year % 4 == 0 && year % 100 != 0) || year % 400 == 0;
-  if (month < 1 || month > 12) return bad("month out of range 01..12");
-  const int month_days = month == 2 && leap ? 29 : kDays[static_cast<std::size_t>(month - 1)];
-  if (day < 1 || day > month_days) return bad("no such day in that month");
-  if (hour > 23) return bad("hour out of range 00..23");
-  if (minute > 59) return bad("minute out of range 00..59");
-  if (second > 59) return bad("second out of range 00..59 (no leap seconds)");
-
-  std::size_t pos = 19;
-  std::int64_t micros = 0;
-  if (pos < text.size() && text[pos] == '.') {
-    ++pos;
-    std::size_t count = 0;
-    while (pos < text.size() && IsDigit(text[pos])) {
-      if (++count > 9) return bad("more than 9 fraction digits");
-      if (count <= 6) micros = micros * 10 + (text[pos] - '0');
-      ++pos;
-    }
-    if (count == 0) return bad("no digits after '.'");
-    for (std::size_t i = count; i < 6; ++i) micros *= 10;
-  }
-  const std::string_view zone = text.substr(pos);
-  if (zone.empty()) return bad("no zone: end with Z or +00:00 (times are UTC)");
-  if (zone != "Z" && zone != "+00:00") return bad("zone must be Z or +00:00 (times are UTC)");
-
-  const std::int64_t days = core::DaysFromCivil(year, month, day);
-  const std::int64_t seconds =
-      days * 86'400 + std::int64_t{hour} * 3'600 + std::int64_t{minute} * 60 + second;
-  return seconds * core::kMicrosPerSecond + micros;
+  return parsed;
 }
 
 }  // namespace nightjar::mqtt

@@ -18,7 +18,8 @@
 //   time_field, when set, names the sample time the same way, written as time_encoding
 //   says — configured, never guessed from the size of the number:
 //     kIso8601       a string YYYY-MM-DDTHH:MM:SS[.f]Z or the same ending in +00:00: UTC
-//                    only, 1 to 9 fraction digits (cut to whole microseconds), the date
+//                    only, 1 to 9 fraction digits (truncated to whole microseconds; the
+//                    one parser, core::ParseUtcTimestamp in core/timestamp_format.h), the date
 //                    must exist, no leap second (:60);
 //     kEpochSeconds  a JSON number of seconds since 1970-01-01T00:00:00Z, fraction allowed;
 //     kEpochMillis   a JSON number of milliseconds since then, fraction allowed.

@@ -16,7 +16,10 @@
 #include <utility>
 
 #include "core/alert_json.h"
+#include "replay/baseline_scores.h"
 #include "replay/labels.h"
+#include "replay/report_html.h"
+#include "replay/report_trace.h"
 
 namespace nightjar::replay {
 namespace {
@@ -277,16 +280,23 @@ ReplayReport ReplayToDirectory(const ReplayJob& job, const ReplayOptions& option
   }
   const std::string alerts_path = (dir / "alerts.jsonl").string();
   const std::string summary_path = (dir / "summary.json").string();
-  // A summary left from an earlier run must not pass for this one's.
+  const std::string report_path = (dir / "report.html").string();
+  // A summary or page left from an earlier run must not pass for this one's.
   std::filesystem::remove(summary_path, error);
+  std::filesystem::remove(report_path, error);
 
   OutputFile alerts_file;
   if (core::Status opened = alerts_file.Open(alerts_path); !opened.ok()) {
     report.status = opened;
     return report;
   }
+  // The page's traces, bucketed as they come (bounded memory), and nightjar's alerts.
+  ReportTrace trace;
+  std::vector<core::Alert> page_alerts;
   ReplayCallbacks callbacks;
-  callbacks.on_alert = [&alerts_file](const core::Alert& alert) {
+  callbacks.on_sample = [&trace](const TracePoint& point) { trace.Add(point); };
+  callbacks.on_alert = [&alerts_file, &page_alerts](const core::Alert& alert) {
+    page_alerts.push_back(alert);
     std::string& buffer = alerts_file.buffer();
     core::AppendAlertJson(alert, &buffer);
     buffer.push_back('\n');
@@ -301,7 +311,41 @@ ReplayReport ReplayToDirectory(const ReplayJob& job, const ReplayOptions& option
   }
 
   report.alarm_rate = ComputeAlarmRate(report.summary);
-  if (labels) report.scores = ScoreAgainstLabels(report.summary, *labels, job.labels);
+  std::vector<std::string> names;
+  names.reserve(report.summary.channels.size());
+  for (const ChannelSummary& channel : report.summary.channels) names.push_back(channel.name);
+  if (labels) {
+    report.scores = ScoreAgainstLabels(report.summary, *labels, job.labels);
+    // Only a full nightjar pass is worth setting baselines against.
+    if (report.status.ok()) {
+      const auto wall_start = std::chrono::steady_clock::now();
+      const double cpu_start = ThreadCpuSeconds();
+      BaselineOutcome baselines = ScoreBaselines(job.input, options, *labels, names,
+                                                 report.scores->duration_s, report.scores->options);
+      report.baselines_wall_s = SecondsSince(wall_start);
+      report.baselines_cpu_s = ThreadCpuSeconds() - cpu_start;
+      if (!baselines.status.ok()) report.status = std::move(baselines.status);
+      for (DetectorScores& row : baselines.rows) {
+        report.scores->detectors.push_back(std::move(row));
+      }
+    }
+  }
+
+  ReportInput page;
+  page.file_name = std::filesystem::path(job.input).filename().string();
+  page.channels = trace.Channels(names);
+  page.alerts = std::move(page_alerts);
+  if (labels) page.windows = *labels;
+  if (report.scores) {
+    page.scoring = report.scores->options;
+    for (const DetectorScores& row : report.scores->detectors) {
+      page.scores.push_back(ReportScoreRow{row.detector, row.table, std::nullopt});
+    }
+  }
+  if (core::Status written = WriteWholeFile(report_path, RenderReport(page));
+      !written.ok() && report.status.ok()) {
+    report.status = written;
+  }
   if (core::Status written = WriteWholeFile(summary_path, ReportToJson(report));
       !written.ok() && report.status.ok()) {
     report.status = written;

@@ -9,9 +9,12 @@
 // alerts, bit for bit, whatever else runs at the same time.
 //
 // ReplayToDirectory adds the files `nightjar replay` writes: <dir>/alerts.jsonl (one
-// core/alert_json.h object per line, raises and clears in time order) and
-// <dir>/summary.json (ReportToJson). RunReplayJobs runs several such jobs on a few
-// threads, one Engine per recording.
+// core/alert_json.h object per line, raises and clears in time order),
+// <dir>/summary.json (ReportToJson) and <dir>/report.html (report_html.h, fed by the
+// bucketed sample trace, report_trace.h). With labels it also scores two baselines
+// (baseline_scores.h: "next = last" and static limits) in one extra cheap pass on the
+// same thread. RunReplayJobs runs several such jobs on a few threads, one Engine per
+// recording.
 //
 // Thread-safety: RunReplay and ReplayToDirectory use only their arguments and may run on
 // several threads at once; each call owns its reader and engine. Callbacks run on the
@@ -105,12 +108,14 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
 struct ReplayJob {
   std::string input;    // the recording
   std::string labels;   // its labels file; empty: no labels, no scores
-  std::string out_dir;  // created if missing; alerts.jsonl and summary.json are replaced
+  std::string out_dir;  // created if missing; alerts.jsonl, summary.json, report.html replaced
 };
 
 // Reads the labels (if any; a bad labels file fails the job before the replay), runs
-// the replay writing <out_dir>/alerts.jsonl, and writes <out_dir>/summary.json, also
-// when the replay stopped early (then with "ok": false and the error). The report's
+// the replay writing <out_dir>/alerts.jsonl, then (with labels, and only when the replay
+// ran to its end) the baseline pass, and writes <out_dir>/summary.json and
+// <out_dir>/report.html, also when the replay stopped early (then with "ok": false and
+// the error). The report's
 // status is the first failure: labels, replay, or writing the files.
 ReplayReport ReplayToDirectory(const ReplayJob& job, const ReplayOptions& options,
                                const std::function<void(const ReplayProgress&)>& on_progress = {});

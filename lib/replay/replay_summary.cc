@@ -366,6 +366,7 @@ LabelScores ScoreAgainstLabels(const ReplaySummary& summary, std::span<const Lab
   names.reserve(summary.channels.size());
   for (const ChannelSummary& channel : summary.channels) names.push_back(channel.name);
   scores.table = ScoreEventsByChannel(raises, windows, names, scores.duration_s, options);
+  scores.detectors.push_back(DetectorScores{"nightjar", scores.table});
   return scores;
 }
 
@@ -469,6 +470,16 @@ std::string ReportToJson(const ReplayReport& report) {
       json.EndObject();
     }
     json.EndArray();
+    json.Key("detectors");
+    json.BeginArray();
+    for (const DetectorScores& row : scores.detectors) {
+      json.BeginObject();
+      json.Field("detector", row.detector);
+      json.Key("overall");
+      WriteEventScores(json, row.table.overall);
+      json.EndObject();
+    }
+    json.EndArray();
     json.EndObject();
   } else {
     json.Null();
@@ -481,6 +492,8 @@ std::string ReportToJson(const ReplayReport& report) {
   json.Field("cpu_s", s.cpu_s);
   json.Field("samples_per_s", s.samples_per_s());
   json.Field("speedup", s.speedup());
+  json.Field("baselines_wall_s", report.baselines_wall_s);
+  json.Field("baselines_cpu_s", report.baselines_cpu_s);
   json.EndObject();
   json.EndObject();
   return json.Take();
@@ -622,6 +635,27 @@ std::string FormatReportText(const ReplayReport& report) {
                     "  %6s\n",
                     w, channel.channel.c_str(), c.true_raises, c.expected_raises, c.false_alarms,
                     c.detected, c.windows, Number(c.recall, "%.2f").c_str());
+    }
+    if (!scores.detectors.empty()) {
+      out += Printf("\n  %-12s  %9s  %6s  %5s  %10s  %15s\n", "detector", "precision", "recall",
+                    "F1", "mean delay", "false alarms/d");
+      for (const DetectorScores& detector_row : scores.detectors) {
+        const EventScores& r = detector_row.table.overall;
+        // printf pads by bytes; pad the UTF-8 name by code points instead.
+        std::string name = detector_row.detector;
+        std::size_t points = 0;
+        for (const char ch : name) points += (static_cast<unsigned char>(ch) & 0xC0) != 0x80;
+        if (points < 12) name.append(12 - points, ' ');
+        out += Printf(
+            "  %s  %9s  %6s  %5s  %10s  %15s\n", name.c_str(), Number(r.precision, "%.2f").c_str(),
+            Number(r.recall, "%.2f").c_str(), Number(r.f1, "%.2f").c_str(),
+            (std::isfinite(r.mean_delay_s) ? Delay(r.mean_delay_s) : std::string("-")).c_str(),
+            Number(r.false_alarms_per_day, "%.2f").c_str());
+      }
+      if (report.baselines_wall_s > 0.0) {
+        out += Printf("  (baselines replayed in %.2f s, %.2f s CPU)\n", report.baselines_wall_s,
+                      report.baselines_cpu_s);
+      }
     }
   }
   return out;

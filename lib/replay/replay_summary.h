@@ -143,6 +143,12 @@ AlarmRate ComputeAlarmRate(std::span<const core::TimestampUs> raise_times, core:
 // The alarms of `summary` (raises of kind anomaly or sensor) over its duration_s().
 AlarmRate ComputeAlarmRate(const ReplaySummary& summary);
 
+// One detector's scores against the labels: a row of the score table.
+struct DetectorScores {
+  std::string detector;  // "nightjar", "next = last", "static ±3σ" (UTF-8)
+  EventScoreTable table;
+};
+
 // Scores against a labels file, by the project's one rule (event_scoring.h, written
 // down in replay_data/FORMAT.md "Scoring"): per channel and pooled.
 struct LabelScores {
@@ -151,9 +157,14 @@ struct LabelScores {
   double duration_s = 0.0;   // ReplaySummary::duration_s()
   std::int64_t windows = 0;  // all windows in the file, any kind
   EventScoreTable table;     // per channel (column order) and overall
+  // The same rule applied to each detector run on the recording: nightjar first (the
+  // same numbers as `table`), then the baselines ReplayToDirectory adds
+  // (baseline_scores.h). summary.json's "detectors" and the printed rows list these.
+  std::vector<DetectorScores> detectors;
 };
 
-// Scores the summary's alarm raises (kind anomaly or sensor) against `windows`.
+// Scores the summary's alarm raises (kind anomaly or sensor) against `windows`; one
+// detector row, "nightjar".
 LabelScores ScoreAgainstLabels(const ReplaySummary& summary, std::span<const LabelWindow> windows,
                                std::string path, const ScoringOptions& options = {});
 
@@ -163,6 +174,9 @@ struct ReplayReport {
   ReplaySummary summary;
   AlarmRate alarm_rate;
   std::optional<LabelScores> scores;  // only when labels were given
+  // The extra baseline pass (with labels only): wall-clock and its thread's CPU seconds.
+  double baselines_wall_s = 0.0;
+  double baselines_cpu_s = 0.0;
 };
 
 // summary.json: the report as one pretty-printed JSON object, with a final newline.

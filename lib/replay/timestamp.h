@@ -1,17 +1,10 @@
 // ISO-8601 UTC timestamps <-> core::TimestampUs (microseconds since the Unix epoch).
 //
 // Recordings and label files carry wall-clock times as text; the engine works in
-// TimestampUs. Accepted text, and nothing else:
-//
-//   YYYY-MM-DDTHH:MM:SS[.f...]Z        e.g. 2026-03-09T10:54:34Z, 2026-03-09T10:54:34.25Z
-//   YYYY-MM-DDTHH:MM:SS[.f...]+00:00   the same instant with an explicit zero offset
-//
-// Fields have exactly the digits shown; the year is 0000..9999 (proleptic Gregorian),
-// the date must exist (leap years included), hours 00..23, minutes and seconds 00..59.
-// POSIX time has no leap seconds, so :60 is rejected. The fraction has 1 to 6 digits
-// (the resolution is 1 µs; a 7th digit would be silently lost, so it is an error).
-// Lowercase t/z, a space instead of T, other offsets and a missing zone are errors:
-// a recording whose zone is unknown must not be guessed at.
+// TimestampUs. The accepted text is core::ParseUtcTimestamp's (core/timestamp_format.h),
+// the one parser shared with MQTT payloads: YYYY-MM-DDTHH:MM:SS[.f...]Z or ...+00:00,
+// 1 to 9 fraction digits truncated to whole microseconds; a recording whose zone is
+// unknown must not be guessed at.
 //
 // Thread-safety: pure functions, safe from any thread. Ownership: plain values.
 #pragma once

@@ -6,7 +6,9 @@ has drawn every chart, and data-ready="error" with data-error when its script th
 Chromium's --dump-dom prints the DOM after the page's load event, so the attributes are
 in the dump exactly when the script ran to its end. This script:
 
-  1. renders the synthetic report and the demo-day report with the renderer driver;
+  1. renders the synthetic report and the demo-day report with the renderer driver, and
+     (with --nightjar) runs the real `nightjar replay` on a short generated labelled
+     recording and takes the report.html it writes;
   2. loads each in Chromium and requires data-ready="ok", data-charts equal to the
      number of channels, as many <canvas> elements, and no data-error;
   3. as a control, injects an exception into a copy of the page and requires the same
@@ -14,10 +16,14 @@ in the dump exactly when the script ran to its end. This script:
 
 Python 3 standard library only. Every external step has a timeout.
 Usage: check_report_in_browser.py --renderer PATH --recording DAY.csv.gz --workdir DIR
+                                  [--nightjar PATH]
 """
 
 import argparse
+import datetime
+import math
 import os
+import random
 import re
 import shutil
 import subprocess
@@ -48,6 +54,57 @@ def render(renderer, args, out_path):
     charts, size = int(match.group(1)), int(match.group(2))
     print(f"rendered {os.path.basename(out_path)}: {charts} charts, {size} bytes")
     return charts
+
+
+REPLAY_CHANNELS = ("cw2.pump_a.flow", "cw2.pump_a.motor_current", "cw2.hx.outlet_temp")
+REPLAY_ROWS = 2400  # 40 minutes at 1 Hz: past the default warm-up, short enough to be quick
+
+
+def write_short_recording(path):
+    """A 1 Hz recording of three invented channels with a step on the flow, and labels."""
+    rng = random.Random(20260309)
+    start = datetime.datetime(2026, 3, 9, tzinfo=datetime.timezone.utc)
+    step_from, step_to = 2000, 2200
+    with open(path, "w", encoding="utf-8") as f:
+        f.write("timestamp," + ",".join(REPLAY_CHANNELS) + "\n")
+        for i in range(REPLAY_ROWS):
+            t = (start + datetime.timedelta(seconds=i)).strftime("%Y-%m-%dT%H:%M:%SZ")
+            flow = 120.0 + 3.0 * math.sin(2 * math.pi * i / 600) + rng.gauss(0, 0.4)
+            if step_from <= i < step_to:
+                flow += 15.0
+            current = 42.0 + 0.02 * (flow - 120.0) + rng.gauss(0, 0.1)
+            temp = 31.0 + 0.5 * math.sin(2 * math.pi * i / 1800) + rng.gauss(0, 0.05)
+            f.write(f"{t},{flow:.3f},{current:.3f},{temp:.3f}\n")
+    labels = path[: -len(".csv")] + ".labels.csv"
+    with open(labels, "w", encoding="utf-8") as f:
+        f.write("start,end,kind\n")
+        for a, b in ((step_from, step_to - 1),):
+            ta = (start + datetime.timedelta(seconds=a)).strftime("%Y-%m-%dT%H:%M:%SZ")
+            tb = (start + datetime.timedelta(seconds=b)).strftime("%Y-%m-%dT%H:%M:%SZ")
+            f.write(f"{ta},{tb},anomaly\n")
+
+
+def replay_with_nightjar(nightjar, workdir):
+    """Runs `nightjar replay` on a short recording; returns the report.html path."""
+    recording = os.path.join(workdir, "short_day.csv")
+    write_short_recording(recording)
+    out = os.path.join(workdir, "short_day_out")
+    proc = subprocess.run([nightjar, "replay", "--input", recording, "--out", out],
+                          capture_output=True, text=True, timeout=RENDER_TIMEOUT_S,
+                          check=False, stdin=subprocess.DEVNULL)
+    if proc.returncode != 0:
+        raise RuntimeError(f"nightjar replay failed ({proc.returncode}): {proc.stderr.strip()}")
+    for row in ("nightjar", "next = last", "static"):
+        if f"  {row}" not in proc.stdout:
+            raise RuntimeError(f"printed summary lacks the {row!r} score row:\n{proc.stdout}")
+    page = os.path.join(out, "report.html")
+    with open(page, encoding="utf-8") as f:
+        text = f.read()
+    for row in ("next = last", "static \u00b13\u03c3"):
+        if row not in text:
+            raise RuntimeError(f"report.html lacks the {row!r} score row")
+    print(f"replayed {os.path.basename(recording)} with nightjar: {os.path.getsize(page)} bytes")
+    return page
 
 
 def dump_dom(chromium, page_path):
@@ -103,6 +160,7 @@ def main():
     parser.add_argument("--renderer", required=True)
     parser.add_argument("--recording", required=True)
     parser.add_argument("--workdir", required=True)
+    parser.add_argument("--nightjar", help="the nightjar binary: also check its report.html")
     args = parser.parse_args()
 
     chromium = find_chromium()
@@ -131,6 +189,18 @@ def main():
         else:
             print(f"ok   {name}: {charts} charts drawn, no script error")
 
+    checked = len(pages)
+    if args.nightjar:
+        checked += 1
+        page = replay_with_nightjar(args.nightjar, args.workdir)
+        found = problems_with(dump_dom(chromium, page), len(REPLAY_CHANNELS))
+        if found:
+            print("FAIL nightjar replay report.html: " + "; ".join(found))
+            failures += 1
+        else:
+            print(f"ok   nightjar replay report.html: {len(REPLAY_CHANNELS)} charts drawn, "
+                  "no script error")
+
     # Control: the same check must reject a page whose script throws.
     synthetic = os.path.join(args.workdir, "synthetic.html")
     broken = os.path.join(args.workdir, "control_broken.html")
@@ -142,7 +212,7 @@ def main():
     else:
         print("ok   control: an injected script error is reported")
 
-    print(f"{2 + 1 - failures} passed, {failures} failed")
+    print(f"{checked + 1 - failures} passed, {failures} failed")
     return 1 if failures else 0
 
 

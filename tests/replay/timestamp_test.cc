@@ -36,34 +36,37 @@ TEST(TimestampTest, FractionAndOffset) {
   EXPECT_EQ(ParseOk("2026-03-09T10:54:34+00:00"), 1773053674 * kUs);
   EXPECT_EQ(ParseOk("2026-03-09T10:54:34.25+00:00"), 1773053674 * kUs + 250000);
   EXPECT_EQ(ParseOk("1969-12-31T23:59:59.999999Z"), -1);
+  // Past microseconds the digits are cut, never rounded (core::ParseUtcTimestamp).
+  EXPECT_EQ(ParseOk("2026-03-09T10:54:34.1234569Z"), 1773053674 * kUs + 123456);
+  EXPECT_EQ(ParseOk("2026-03-09T10:54:34.999999999Z"), 1773053674 * kUs + 999999);
 }
 
 TEST(TimestampTest, RejectsEverythingElse) {
   const std::vector<std::string> bad_texts = {
       "",
-      "2026-03-09T10:54:34",           // no zone
-      "2026-03-09 10:54:34Z",          // space instead of T
-      "2026-03-09t10:54:34Z",          // lowercase t
-      "2026-03-09T10:54:34z",          // lowercase z
-      "2026-03-09T10:54:34+01:00",     // not UTC
-      "2026-03-09T10:54:34-00:00",     // only +00:00 names UTC
-      "2026-03-09T10:54:34+0000",      // offset without colon
-      "2026-03-09T10:54:34.Z",         // '.' without digits
-      "2026-03-09T10:54:34.1234567Z",  // below 1 us resolution
-      "2026-3-09T10:54:34Z",           // short field
-      "2023-02-29T00:00:00Z",          // not a leap year
-      "2100-02-29T00:00:00Z",          // century, not a leap year
-      "2026-04-31T00:00:00Z",          // April has 30 days
-      "2026-13-01T00:00:00Z",          // month 13
-      "2026-00-01T00:00:00Z",          // month 0
-      "2026-03-00T00:00:00Z",          // day 0
-      "2026-03-09T24:00:00Z",          // hour 24
-      "2026-03-09T10:60:00Z",          // minute 60
-      "2026-03-09T23:59:60Z",          // leap second
-      "2026-03-09T10:54:34Z ",         // trailing space
-      " 2026-03-09T10:54:34Z",         // leading space
-      "1773053674",                    // epoch number
-      "+2026-03-09T10:54:34Z",         // signed year
+      "2026-03-09T10:54:34",              // no zone
+      "2026-03-09 10:54:34Z",             // space instead of T
+      "2026-03-09t10:54:34Z",             // lowercase t
+      "2026-03-09T10:54:34z",             // lowercase z
+      "2026-03-09T10:54:34+01:00",        // not UTC
+      "2026-03-09T10:54:34-00:00",        // only +00:00 names UTC
+      "2026-03-09T10:54:34+0000",         // offset without colon
+      "2026-03-09T10:54:34.Z",            // '.' without digits
+      "2026-03-09T10:54:34.1234567890Z",  // more than 9 fraction digits
+      "2026-3-09T10:54:34Z",              // short field
+      "2023-02-29T00:00:00Z",             // not a leap year
+      "2100-02-29T00:00:00Z",             // century, not a leap year
+      "2026-04-31T00:00:00Z",             // April has 30 days
+      "2026-13-01T00:00:00Z",             // month 13
+      "2026-00-01T00:00:00Z",             // month 0
+      "2026-03-00T00:00:00Z",             // day 0
+      "2026-03-09T24:00:00Z",             // hour 24
+      "2026-03-09T10:60:00Z",             // minute 60
+      "2026-03-09T23:59:60Z",             // leap second
+      "2026-03-09T10:54:34Z ",            // trailing space
+      " 2026-03-09T10:54:34Z",            // leading space
+      "1773053674",                       // epoch number
+      "+2026-03-09T10:54:34Z",            // signed year
   };
   for (const std::string& text : bad_texts) {
     core::Result<core::TimestampUs> t = ParseTimestamp(text);
