@@ -254,6 +254,40 @@ TEST(RuntimeStateTest, StateInLoadsFromThereAndCheckpointsGoToStateDir) {
   }
 }
 
+// A file put into the folder after the start (e.g. copied from a `learn` run) is loaded
+// when its channel sends its first sample. One worker, so that the sample of another
+// channel proves the start-up load is over before the file appears.
+TEST(RuntimeStateTest, AFileThatAppearsAfterTheStartIsLoadedAtItsChannelsFirstSample) {
+  testing::TempDir dir;
+  const std::string learnt = dir.File("learnt");
+  const std::string state_dir = dir.File("state");
+  {
+    auto d = StartDaemon(Load(Config(learnt)));
+    ASSERT_TRUE(d);
+    Feed(*d, 0, 300);
+    ASSERT_TRUE(
+        WaitFor([&] { return d->runtime->counters().samples == 900; }, std::chrono::seconds(20)));
+    d->runtime->Stop();
+  }
+  std::string text = Config(state_dir);
+  text.replace(text.find("workers: 3"), std::string("workers: 3").size(), "workers: 1");
+  auto d = StartDaemon(Load(text));
+  ASSERT_TRUE(d);
+  ASSERT_TRUE(d->bus.Deliver("cw2/pump_b/flow", Sample(300)));
+  ASSERT_TRUE(
+      WaitFor([&] { return d->runtime->counters().samples == 1; }, std::chrono::seconds(20)));
+  std::filesystem::create_directories(state_dir);
+  std::filesystem::copy_file(FileOf(learnt, "cw2.pump_a.flow"),
+                             FileOf(state_dir, "cw2.pump_a.flow"));
+  ASSERT_TRUE(d->bus.Deliver("cw2/pump_a/flow", Sample(300)));
+  ASSERT_TRUE(WaitFor([&] { return FirstStates(d->bus).size() == 2; }, std::chrono::seconds(20)));
+  d->runtime->Stop();
+  const auto first = FirstStates(d->bus);
+  EXPECT_EQ(first.at("cw2/state/cw2/pump_b/flow")["state"], "learning");
+  EXPECT_EQ(first.at("cw2/state/cw2/pump_a/flow")["state"], "armed");
+  EXPECT_EQ(first.at("cw2/state/cw2/pump_a/flow")["samples"], 301);
+}
+
 TEST(RuntimeStateTest, AChannelResetByAReloadIsCheckpointedFresh) {
   testing::TempDir dir;
   const std::string state_dir = dir.File("state");
