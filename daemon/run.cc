@@ -1,7 +1,13 @@
 // `nightjar run`: the MQTT daemon. Subscribes to the configured sample topics, runs every
 // channel through its engine and publishes alerts, channel state and daemon status.
 //
-//   nightjar run --config FILE [--broker HOST:PORT]
+//   nightjar run --config FILE [--broker HOST:PORT] [--state-in DIR]
+//
+// State: every channel's checkpoint (lib/state/FORMAT.md) is written to daemon.state_dir
+// every daemon.checkpoint_interval_s and on stop, and read back from it at start, so a
+// restarted channel is armed at once. --state-in DIR loads from DIR instead (e.g. the
+// output of `nightjar learn --state-out DIR`); checkpoints still go to daemon.state_dir.
+// A bad file is logged with its name and that channel starts fresh.
 //
 // Signals: the handlers only set flags; a 100 ms tick acts on them. SIGTERM or SIGINT
 // stops: intake closed, queues drained, status "offline" published, disconnect, exit 0.
@@ -23,6 +29,7 @@
 #include <chrono>
 #include <csignal>
 #include <cstdio>
+#include <filesystem>
 #include <memory>
 #include <optional>
 #include <string>
@@ -67,6 +74,7 @@ constexpr std::chrono::milliseconds kTick(100);
 struct RunFlags {
   std::string config;
   std::string broker;
+  std::string state_in;
 };
 
 core::TimestampUs WallClockUs() {
@@ -129,6 +137,18 @@ int RunDaemon(const RunFlags& flags) {
   std::shared_ptr<const config::LoadedConfig> config = LoadForRun(flags.config, broker, &options);
   if (!config) return 1;
   const config::DaemonConfig& daemon = config->service.daemon;
+  if (!flags.state_in.empty()) {
+    std::error_code error;
+    if (!std::filesystem::is_directory(flags.state_in, error)) {
+      spdlog::error("--state-in {}: not a readable folder{}", flags.state_in,
+                    error ? ": " + error.message() : "");
+      return 1;
+    }
+    options.state_in = flags.state_in;
+  }
+  if (daemon.state_dir.empty()) {
+    spdlog::info("daemon.state_dir is empty: what the channels learn is lost at stop");
+  }
   if (!daemon.metrics_listen.empty()) {
     spdlog::warn("daemon.metrics_listen is set but this version serves no metrics yet");
   }
@@ -208,6 +228,9 @@ Command AddRunCommand(CLI::App& app) {
   sub->add_option("-c,--config", flags->config, "YAML config file (mqtt:, daemon:, channels)");
   sub->add_option("--broker", flags->broker,
                   "Broker as HOST:PORT, overriding mqtt.host and mqtt.port");
+  sub->add_option("--state-in", flags->state_in,
+                  "Load channel checkpoints from DIR at start (e.g. nightjar learn --state-out) "
+                  "instead of daemon.state_dir; checkpoints still go to daemon.state_dir");
   return Command{sub, [flags] { return RunDaemon(*flags); }};
 }
 

@@ -19,14 +19,15 @@ constexpr core::TimestampUs kSweepPeriodUs = 100'000;
 
 EngineWorker::EngineWorker(int index, std::shared_ptr<const config::LoadedConfig> config,
                            WorkerTopics topics, std::size_t queue_capacity, mqtt::MessageBus& bus,
-                           Clock clock)
+                           Clock clock, WorkerStateOptions state)
     : index_(index),
       topics_(std::move(topics)),
       bus_(bus),
       clock_(std::move(clock)),
       queue_(queue_capacity),
       config_(std::move(config)),
-      engine_(config_->engine, config_->Resolver()) {}
+      engine_(config_->engine, config_->Resolver()),
+      state_(index, std::move(state)) {}
 
 EngineWorker::~EngineWorker() { StopAndJoin(); }
 
@@ -48,6 +49,7 @@ WorkerCounters EngineWorker::counters() const {
   c.channels = channels_.load(std::memory_order_relaxed);
   c.channels_kept = kept_.load(std::memory_order_relaxed);
   c.channels_reset = reset_.load(std::memory_order_relaxed);
+  c.checkpoints = checkpoints_.load(std::memory_order_relaxed);
   return c;
 }
 
@@ -55,6 +57,9 @@ void EngineWorker::Run() {
   std::vector<SampleItem> samples;
   std::vector<ControlItem> controls;
   bool stopping = false;
+  state_.LoadAtStart(engine_);
+  views_.resize(engine_.channel_count());
+  channels_.store(engine_.channel_count(), std::memory_order_relaxed);
   while (!stopping) {
     queue_.PopAll(kSweepPeriod, samples, controls);
     const core::TimestampUs now = clock_();
@@ -63,6 +68,8 @@ void EngineWorker::Run() {
         HandleCommand(*command, now);
       } else if (const auto* reload = std::get_if<ReloadItem>(&control)) {
         HandleReload(*reload);
+      } else if (std::holds_alternative<CheckpointItem>(control)) {
+        Checkpoint("interval");
       } else {
         stopping = true;  // after the samples already queued
       }
@@ -75,6 +82,13 @@ void EngineWorker::Run() {
   const core::TimestampUs now = clock_();
   for (const SampleItem& sample : samples) HandleSample(sample, now);
   Sweep(now, /*flush=*/true);
+  Checkpoint("stop");
+}
+
+void EngineWorker::Checkpoint(std::string_view why) {
+  if (!state_.saves()) return;
+  state_.Save(engine_, why);
+  checkpoints_.fetch_add(1, std::memory_order_relaxed);
 }
 
 core::TimestampUs EngineWorker::EngineNow(core::TimestampUs wall) const {
@@ -84,6 +98,11 @@ core::TimestampUs EngineWorker::EngineNow(core::TimestampUs wall) const {
 
 void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now) {
   std::optional<core::ChannelId> id = engine_.FindChannel(sample.channel);
+  if (!id && state_.LoadNewChannel(engine_, sample.channel)) {
+    id = engine_.FindChannel(sample.channel);
+    views_.resize(engine_.channel_count());
+    channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+  }
   if (!id) {
     core::Result<core::ChannelId> added = engine_.AddChannel(sample.channel);
     if (!added.ok()) {
@@ -107,7 +126,8 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
     newest_wall_ = now;
   }
   ChannelView& view = views_[*id];
-  view.last_sample = std::max(view.last_sample, sample.time);
+  view.last_sample = view.sampled ? std::max(view.last_sample, sample.time) : sample.time;
+  view.sampled = true;
   view.dirty = true;
   PublishAlerts();
   MaybePublishState(*id, now, false);
@@ -141,7 +161,8 @@ void EngineWorker::HandleCommand(const CommandItem& item, core::TimestampUs now)
       bus_.Publish(topics_.reply_topic, CommandReplyJson(item.parsed, result), topics_.qos, false);
   if (!published.ok()) spdlog::warn("reply not published: {}", published.message());
   PublishAlerts();
-  if (const std::optional<core::ChannelId> id = engine_.FindChannel(command.channel)) {
+  if (const std::optional<core::ChannelId> id = engine_.FindChannel(command.channel);
+      id && views_[*id].sampled) {
     MaybePublishState(*id, now, true);
   }
 }
@@ -210,6 +231,7 @@ void EngineWorker::Sweep(core::TimestampUs now, bool flush) {
   if (has_sample_) engine_.AdvanceClock(EngineNow(now), alerts_);
   PublishAlerts();
   for (core::ChannelId id = 0; id < engine_.channel_count(); ++id) {
+    if (!views_[id].sampled) continue;  // loaded from a file: its state shows at its first sample
     MaybePublishState(id, now, flush && views_[id].dirty);
   }
 }

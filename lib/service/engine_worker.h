@@ -24,7 +24,17 @@
 // channels get the new config.
 //
 // Stop: StopAndJoin() lets the thread finish everything already queued, publish the
-// latest state of every channel that changed since its last state message, then joins it.
+// latest state of every channel that changed since its last state message, checkpoint
+// every channel (when a state folder is set), then joins it.
+//
+// State (worker_state.h): before its first sample the thread loads the checkpoints of its
+// own channels; a CheckpointItem (queued by the runtime every checkpoint_interval_s)
+// writes all of them. Files are written on this thread, never the network thread: the
+// network thread only TryPush()es, so a slow disk can fill this worker's queue (samples
+// beyond its capacity are dropped and counted, as under any overload) but never blocks
+// intake; and since only this thread touches its channels, a checkpoint sits between two
+// samples, never inside one. A channel loaded from a file publishes its state at its first
+// sample; one reset by a reload is written fresh at the next checkpoint.
 //
 // Thread-safety: Offer, PushControl and counters() from any thread; Start and
 // StopAndJoin from the owner's thread. The engine and per-channel bookkeeping are touched
@@ -48,6 +58,7 @@
 #include "mqtt/message_bus.h"
 #include "service/operator_command.h"
 #include "service/work_queue.h"
+#include "service/worker_state.h"
 
 namespace nightjar::service {
 
@@ -62,8 +73,9 @@ struct CommandItem {
 struct ReloadItem {
   std::shared_ptr<const config::LoadedConfig> config;
 };
+struct CheckpointItem {};
 struct StopItem {};
-using ControlItem = std::variant<CommandItem, ReloadItem, StopItem>;
+using ControlItem = std::variant<CommandItem, ReloadItem, CheckpointItem, StopItem>;
 
 struct WorkerTopics {
   std::string alert_prefix;
@@ -80,6 +92,7 @@ struct WorkerCounters {
   std::uint64_t channels = 0;        // channels in the engine
   std::uint64_t channels_kept = 0;   // by reloads: channels that kept their state
   std::uint64_t channels_reset = 0;  // by reloads: channels that learn again
+  std::uint64_t checkpoints = 0;     // checkpoints written (each covers all channels)
 };
 
 class EngineWorker {
@@ -87,7 +100,8 @@ class EngineWorker {
   using Clock = std::function<core::TimestampUs()>;
 
   EngineWorker(int index, std::shared_ptr<const config::LoadedConfig> config, WorkerTopics topics,
-               std::size_t queue_capacity, mqtt::MessageBus& bus, Clock clock);
+               std::size_t queue_capacity, mqtt::MessageBus& bus, Clock clock,
+               WorkerStateOptions state = {});
   ~EngineWorker();
   EngineWorker(const EngineWorker&) = delete;
   EngineWorker& operator=(const EngineWorker&) = delete;
@@ -108,13 +122,15 @@ class EngineWorker {
     core::ChannelState state = core::ChannelState::kLearning;
     core::TimestampUs published_at = 0;  // wall clock
     core::TimestampUs last_sample = 0;
-    bool dirty = false;  // values changed since the last publish
+    bool dirty = false;    // values changed since the last publish
+    bool sampled = false;  // false for a channel loaded from a file until its first sample
   };
 
   void Run();
   void HandleSample(const SampleItem& sample, core::TimestampUs now);
   void HandleCommand(const CommandItem& item, core::TimestampUs now);
   void HandleReload(const ReloadItem& item);
+  void Checkpoint(std::string_view why);
   void PublishAlerts();
   void MaybePublishState(core::ChannelId id, core::TimestampUs now, bool force);
   // Gap check and state that is due; `flush` publishes every changed state (on stop).
@@ -140,6 +156,7 @@ class EngineWorker {
   bool has_sample_ = false;
   core::TimestampUs last_sweep_ = 0;
   std::uint64_t rejected_logged_ = 0;
+  WorkerStateStore state_;
 
   std::atomic<std::uint64_t> samples_{0};
   std::atomic<std::uint64_t> rejected_{0};
@@ -147,6 +164,7 @@ class EngineWorker {
   std::atomic<std::uint64_t> channels_{0};
   std::atomic<std::uint64_t> kept_{0};
   std::atomic<std::uint64_t> reset_{0};
+  std::atomic<std::uint64_t> checkpoints_{0};
 };
 
 }  // namespace nightjar::service

@@ -29,9 +29,12 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
   const WorkerTopics topics{self->options_.alert_prefix, self->options_.state_prefix,
                             self->options_.reply_topic, self->options_.qos,
                             self->options_.publish_interval_s};
+  const WorkerStateOptions state{
+      self->options_.state_in.empty() ? self->options_.state_dir : self->options_.state_in,
+      self->options_.state_dir, self->options_.workers};
   for (int i = 0; i < self->options_.workers; ++i) {
     runtime->workers_.push_back(std::make_unique<EngineWorker>(
-        i, config, topics, self->options_.queue_capacity, bus, self->clock_));
+        i, config, topics, self->options_.queue_capacity, bus, self->clock_, state));
   }
   bus.SetMessageHandler([self](std::string_view topic, std::string_view payload) {
     self->OnMessage(topic, payload);
@@ -135,6 +138,13 @@ void Runtime::Tick() {
   if (status_due_.exchange(false) || now >= next_status_) {
     PublishStatus("online", "");
     next_status_ = now + static_cast<core::TimestampUs>(options_.publish_interval_s * 1e6);
+  }
+  // A control item, so each worker writes between two samples (engine_worker.h).
+  if (!options_.state_dir.empty() && now >= next_checkpoint_) {
+    if (next_checkpoint_ != 0) {
+      for (auto& worker : workers_) worker->PushControl(CheckpointItem{});
+    }
+    next_checkpoint_ = now + static_cast<core::TimestampUs>(options_.checkpoint_interval_s * 1e6);
   }
 }
 

@@ -9,15 +9,16 @@
 // the reply topic, a valid one goes to the owning worker's queue, which applies it and
 // replies. N EngineWorker threads each own an Engine shard (`workers: 1` runs the same
 // code). The caller's thread calls Tick() periodically (every 100 ms in nightjar run): it
-// publishes the retained status topic every publish_interval_s and after each connect.
+// publishes the retained status topic every publish_interval_s and after each connect,
+// and every checkpoint_interval_s (with a state_dir) queues a checkpoint to every worker.
 //
 // Topics (see README "Running on MQTT"): alerts and state per channel (engine_worker.h),
 // status {"state":"online",...counters} retained, with {"state":"offline",...} as the last
 // will and on a clean stop; replies to commands on the reply topic.
 //
 // Stop(): closes the intake (no handler is mid-way once it returns), lets every worker
-// finish what is queued, publishes the offline status, then stops the bus (which waits a
-// bounded time for unacknowledged publishes). Reload(): hands an already validated
+// finish what is queued and write its checkpoint, publishes the offline status, then stops the bus
+// (which waits a bounded time for unacknowledged publishes). Reload(): hands an already validated
 // config to every worker (engine_worker.h says what is kept); mqtt: and daemon: changes
 // need a restart.
 //
@@ -104,7 +105,8 @@ class Runtime {
   std::atomic<std::uint64_t> commands_{0};
   std::atomic<std::uint64_t> reloads_{0};
   std::atomic<std::uint64_t> reload_failures_{0};
-  core::TimestampUs next_status_ = 0;  // owner thread
+  core::TimestampUs next_status_ = 0;      // owner thread
+  core::TimestampUs next_checkpoint_ = 0;  // owner thread; 0 until the first Tick
   bool started_ = false;
   bool stopped_ = false;
 };

@@ -136,6 +136,8 @@ core::Result<ServiceOptions> BuildServiceOptions(const config::LoadedConfig& con
     o.intake.rules.push_back(std::move(rule));
   }
 
+  o.state_dir = d.state_dir;
+  o.checkpoint_interval_s = d.checkpoint_interval_s;
   o.alert_prefix = m.alert_prefix;
   o.state_prefix = m.state_prefix;
   o.status_topic = m.status_topic;

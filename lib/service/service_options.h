@@ -33,6 +33,12 @@ struct ServiceOptions {
   int workers = 1;
   std::size_t queue_capacity = 8192;
   double publish_interval_s = 5.0;
+  // Checkpoints (worker_state.h): written to state_dir ("" = none) every
+  // checkpoint_interval_s and on stop; loaded at start from state_in when set (`run
+  // --state-in DIR`, not from the config), else from state_dir.
+  std::string state_dir;
+  std::string state_in;
+  double checkpoint_interval_s = 300.0;
 };
 
 // `source` is the config file's name for errors; `broker` ("HOST:PORT", "HOST" or

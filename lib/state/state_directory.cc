@@ -166,61 +166,74 @@ std::size_t LoadReport::problems() const {
   }));
 }
 
-LoadReport LoadEngineState(core::Engine& engine, const std::string& dir) {
-  LoadReport report;
+core::Result<std::vector<std::string>> ListStateFiles(const std::string& dir) {
   std::vector<std::string> files;
   std::error_code error;
   fs::directory_iterator it(dir, error);
   if (error) {
-    report.entries.push_back(Entry({}, dir, LoadOutcome::kUnreadable, error.message()));
-    return report;
+    const std::string text = dir + ": " + error.message();
+    if (error == std::errc::no_such_file_or_directory) return core::Status::NotFound(text);
+    return core::Status::Unavailable(text);
   }
   for (; it != fs::directory_iterator(); it.increment(error)) {
-    if (error) break;
+    if (error) return core::Status::Unavailable(dir + ": " + error.message());
     const std::string name = it->path().filename().string();
     if (name.size() > kStateFileSuffix.size() && name.ends_with(kStateFileSuffix)) {
       files.push_back(it->path().string());
     }
   }
-  if (error) report.entries.push_back(Entry({}, dir, LoadOutcome::kUnreadable, error.message()));
   std::sort(files.begin(), files.end());
+  return files;
+}
 
+std::optional<LoadEntry> LoadStateFile(core::Engine& engine, const std::string& file,
+                                       const ChannelFilter& owns) {
+  std::ifstream in(file, std::ios::binary);
+  if (!in.is_open()) {
+    if (owns && !owns({})) return std::nullopt;
+    return Entry({}, file, LoadOutcome::kUnreadable, std::strerror(errno));
+  }
+  const std::vector<std::uint8_t> bytes((std::istreambuf_iterator<char>(in)),
+                                        std::istreambuf_iterator<char>());
+  if (in.bad()) {
+    if (owns && !owns({})) return std::nullopt;
+    return Entry({}, file, LoadOutcome::kUnreadable, "read error");
+  }
+  core::StateProblem framing = core::StateProblem::kNone;
+  core::Result<std::string> named = core::PeekChannelName(bytes, &framing);
+  if (!named.ok()) {
+    if (owns && !owns({})) return std::nullopt;
+    return Entry({}, file, FromProblem(framing), named.status().message());
+  }
+  const std::string& channel = *named;
+  if (owns && !owns(channel)) return std::nullopt;
+  if (fs::path(file).filename().string() != StateFileName(channel)) {
+    return Entry(channel, file, LoadOutcome::kChannelMismatch,
+                 "holds channel '" + channel + "', whose file is " + StateFileName(channel));
+  }
+  core::StateProblem problem = core::StateProblem::kNone;
+  const core::Status loaded = engine.LoadChannel(channel, bytes, &problem);
+  if (loaded.ok()) return Entry(channel, file, LoadOutcome::kLoaded, {});
+  const LoadOutcome outcome =
+      problem == core::StateProblem::kNone ? LoadOutcome::kRejected : FromProblem(problem);
+  return Entry(channel, file, outcome, loaded.message());
+}
+
+LoadReport LoadEngineState(core::Engine& engine, const std::string& dir) {
+  LoadReport report;
+  core::Result<std::vector<std::string>> files = ListStateFiles(dir);
+  if (!files.ok()) {
+    // The message already starts with `dir`.
+    const std::string text = files.status().message();
+    report.entries.push_back(Entry({}, dir, LoadOutcome::kUnreadable,
+                                   text.substr(std::min(text.size(), dir.size() + 2))));
+    return report;
+  }
   std::set<std::string> covered;
-  for (const std::string& file : files) {
-    std::ifstream in(file, std::ios::binary);
-    if (!in.is_open()) {
-      report.entries.push_back(Entry({}, file, LoadOutcome::kUnreadable, std::strerror(errno)));
-      continue;
-    }
-    const std::vector<std::uint8_t> bytes((std::istreambuf_iterator<char>(in)),
-                                          std::istreambuf_iterator<char>());
-    if (in.bad()) {
-      report.entries.push_back(Entry({}, file, LoadOutcome::kUnreadable, "read error"));
-      continue;
-    }
-    core::StateProblem framing = core::StateProblem::kNone;
-    core::Result<std::string> named = core::PeekChannelName(bytes, &framing);
-    if (!named.ok()) {
-      report.entries.push_back(Entry({}, file, FromProblem(framing), named.status().message()));
-      continue;
-    }
-    const std::string& channel = *named;
-    if (fs::path(file).filename().string() != StateFileName(channel)) {
-      report.entries.push_back(
-          Entry(channel, file, LoadOutcome::kChannelMismatch,
-                "holds channel '" + channel + "', whose file is " + StateFileName(channel)));
-      continue;
-    }
-    core::StateProblem problem = core::StateProblem::kNone;
-    const core::Status loaded = engine.LoadChannel(channel, bytes, &problem);
-    if (loaded.ok()) {
-      covered.insert(channel);
-      report.entries.push_back(Entry(channel, file, LoadOutcome::kLoaded, {}));
-    } else {
-      const LoadOutcome outcome =
-          problem == core::StateProblem::kNone ? LoadOutcome::kRejected : FromProblem(problem);
-      report.entries.push_back(Entry(channel, file, outcome, loaded.message()));
-    }
+  for (const std::string& file : *files) {
+    std::optional<LoadEntry> entry = LoadStateFile(engine, file);
+    if (entry->outcome == LoadOutcome::kLoaded) covered.insert(entry->channel);
+    report.entries.push_back(std::move(*entry));
   }
   for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
     const std::string& channel = engine.channel_name(id);

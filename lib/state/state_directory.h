@@ -15,6 +15,8 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
+#include <optional>
 #include <span>
 #include <string>
 #include <string_view>
@@ -68,5 +70,18 @@ struct LoadReport {
 // (kUnreadable, with `dir` as file). Channels whose file failed keep whatever they had
 // (a new channel starts fresh on its first sample).
 LoadReport LoadEngineState(core::Engine& engine, const std::string& dir);
+
+// The *.njstate files in `dir`, full paths, sorted; Unavailable naming `dir` when the
+// folder cannot be listed (NotFound when it does not exist).
+core::Result<std::vector<std::string>> ListStateFiles(const std::string& dir);
+
+// Whether a shard owns `channel`; called with "" for a file whose header cannot be read.
+using ChannelFilter = std::function<bool(std::string_view channel)>;
+
+// Loads one state file into `engine` (the checks and outcomes of LoadEngineState).
+// With `owns` set, a file of a channel it refuses is left alone and nullopt returned:
+// shards of one engine per thread each load their own channels from one folder.
+std::optional<LoadEntry> LoadStateFile(core::Engine& engine, const std::string& file,
+                                       const ChannelFilter& owns = {});
 
 }  // namespace nightjar::state

@@ -39,6 +39,7 @@ std::string Config(int workers) {
              "      time_field: t\n"
              "      time_unit: epoch_s\n"
              "daemon:\n"
+             "  state_dir: \"\"\n"
              "  queue_capacity: 1048576\n"
              "  workers: ") +
          std::to_string(workers) + "\n";

@@ -28,9 +28,10 @@ inline constexpr const char* kReplyTopic = "brackwater/cw2/nightjar/reply";
 // A config with short learning (last-value forecaster, 200 samples) so a test warms a
 // channel up in a fraction of a second; samples are JSON {"t": epoch seconds, "value": x}
 // on brackwater/<area>/<asset>/<signal>. `extra_defaults` and `channels` are appended
-// under defaults: and as the channels: list.
+// under defaults: and as the channels: list; `state_dir` is daemon.state_dir ("" = no
+// checkpoints, so a test never writes to the system's folder).
 inline std::string TestConfig(const std::string& extra_defaults = "",
-                              const std::string& channels = "") {
+                              const std::string& channels = "", const std::string& state_dir = "") {
   return std::string(
              "defaults:\n"
              "  forecaster: last_value\n"
@@ -55,7 +56,9 @@ inline std::string TestConfig(const std::string& extra_defaults = "",
          "      time_unit: epoch_s\n"
          "daemon:\n"
          "  workers: 2\n"
-         "  publish_interval_s: 0.2\n";
+         "  publish_interval_s: 0.2\n"
+         "  state_dir: \"" +
+         state_dir + "\"\n";
 }
 
 inline constexpr std::int64_t kT0 = 1'780'000'000;  // 2026-05-28T20:26:40Z
@@ -123,20 +126,22 @@ bool WaitRetained(const TestBroker& broker, const std::string& topic, Predicate 
   return ok;
 }
 
-// `nightjar run` on `broker`, its config at <broker dir>/nightjar.yaml and its log
-// (stdout and stderr) at <broker dir>/nightjar.log.
+// `nightjar run` on `broker`, its config at <broker dir>/<name>.yaml and its log
+// (stdout and stderr) at <broker dir>/<name>.log; `extra_args` go after the usual ones.
 class DaemonProcess {
  public:
-  static core::Result<std::unique_ptr<DaemonProcess>> Start(const TestBroker& broker,
-                                                            const std::string& config) {
+  static core::Result<std::unique_ptr<DaemonProcess>> Start(
+      const TestBroker& broker, const std::string& config,
+      const std::vector<std::string>& extra_args = {}, const std::string& name = "nightjar") {
     std::unique_ptr<DaemonProcess> d(new DaemonProcess());
-    d->config_path_ = broker.dir().File("nightjar.yaml");
-    d->log_path_ = broker.dir().File("nightjar.log");
+    d->config_path_ = broker.dir().File(name + ".yaml");
+    d->log_path_ = broker.dir().File(name + ".log");
     WriteFile(d->config_path_, config);
-    core::Result<std::unique_ptr<ChildProcess>> child =
-        ChildProcess::Spawn({NIGHTJAR_BINARY, "run", "--config", d->config_path_, "--broker",
-                             "127.0.0.1:" + std::to_string(broker.port())},
-                            d->log_path_);
+    std::vector<std::string> argv{NIGHTJAR_BINARY, "run",
+                                  "--config",      d->config_path_,
+                                  "--broker",      "127.0.0.1:" + std::to_string(broker.port())};
+    argv.insert(argv.end(), extra_args.begin(), extra_args.end());
+    core::Result<std::unique_ptr<ChildProcess>> child = ChildProcess::Spawn(argv, d->log_path_);
     if (!child.ok()) return child.status();
     d->process_ = std::move(child).value();
     if (!d->WaitLog("ready: connected and subscribed")) {

@@ -58,6 +58,7 @@ mqtt:
 daemon:
   workers: 3
   publish_interval_s: 0.1
+  state_dir: ""
 )";
 
 std::shared_ptr<const config::LoadedConfig> Load(const std::string& text) {

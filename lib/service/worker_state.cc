@@ -1,0 +1,102 @@
+#include "service/worker_state.h"
+
+#include <spdlog/spdlog.h>
+
+#include <chrono>
+#include <filesystem>
+#include <system_error>
+
+#include "service/shard.h"
+#include "state/state_directory.h"
+
+namespace nightjar::service {
+namespace {
+
+void LogEntry(int index, const state::LoadEntry& entry) {
+  if (entry.outcome == state::LoadOutcome::kLoaded) {
+    spdlog::info("worker {}: state: {}", index, entry.message);
+  } else {
+    spdlog::warn("worker {}: state: {}; the channel starts fresh", index, entry.message);
+  }
+}
+
+}  // namespace
+
+WorkerStateStore::WorkerStateStore(int worker_index, WorkerStateOptions options)
+    : index_(worker_index), options_(std::move(options)) {}
+
+bool WorkerStateStore::Owns(std::string_view channel) const {
+  if (channel.empty()) return index_ == 0;
+  return ShardFor(channel, static_cast<std::size_t>(options_.worker_count)) ==
+         static_cast<std::size_t>(index_);
+}
+
+void WorkerStateStore::LoadAtStart(core::Engine& engine) {
+  if (options_.load_dir.empty()) return;
+  core::Result<std::vector<std::string>> files = state::ListStateFiles(options_.load_dir);
+  if (!files.ok()) {
+    // Only worker 0 speaks for the folder as a whole: one line, not one per worker.
+    if (index_ != 0) return;
+    if (files.status().code() == core::StatusCode::kNotFound) {
+      spdlog::info("state: {}: no checkpoints yet; every channel starts fresh", options_.load_dir);
+    } else {
+      spdlog::warn("state: {}; every channel starts fresh", files.status().message());
+    }
+    return;
+  }
+  std::size_t loaded = 0;
+  std::size_t problems = 0;
+  const auto owns = [this](std::string_view channel) { return Owns(channel); };
+  for (const std::string& file : *files) {
+    looked_at_.insert(file);
+    const std::optional<state::LoadEntry> entry = state::LoadStateFile(engine, file, owns);
+    if (!entry) continue;
+    LogEntry(index_, *entry);
+    ++(entry->outcome == state::LoadOutcome::kLoaded ? loaded : problems);
+  }
+  spdlog::info("worker {}: state: {} channel{} loaded from {}, {} file{} with problems", index_,
+               loaded, loaded == 1 ? "" : "s", options_.load_dir, problems,
+               problems == 1 ? "" : "s");
+}
+
+bool WorkerStateStore::LoadNewChannel(core::Engine& engine, std::string_view channel) {
+  if (options_.load_dir.empty()) return false;
+  const std::string file =
+      (std::filesystem::path(options_.load_dir) / state::StateFileName(channel)).string();
+  // Once per file: a bad file is reported once, not on every sample of its channel.
+  if (!looked_at_.insert(file).second) return false;
+  std::error_code error;
+  if (!std::filesystem::exists(file, error)) return false;
+  const std::optional<state::LoadEntry> entry = state::LoadStateFile(engine, file);
+  LogEntry(index_, *entry);
+  return entry->outcome == state::LoadOutcome::kLoaded;
+}
+
+CheckpointResult WorkerStateStore::Save(const core::Engine& engine, std::string_view why) {
+  CheckpointResult result;
+  if (!saves()) return result;
+  const auto start = std::chrono::steady_clock::now();
+  for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
+    bytes_.clear();
+    engine.SaveChannel(id, bytes_);
+    const core::Status written =
+        state::WriteStateFile(options_.save_dir, engine.channel_name(id), bytes_);
+    if (written.ok()) {
+      ++result.written;
+      result.bytes += bytes_.size();
+    } else {
+      // The old checkpoint of that channel stays; the next one tries again. One line
+      // per checkpoint: a full disk must not write a line per channel.
+      if (++result.failed == 1)
+        spdlog::error("worker {}: checkpoint ({}): {}", index_, why, written.message());
+    }
+  }
+  result.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  spdlog::info("worker {}: checkpoint ({}): {} channel{} written to {} ({} bytes, {:.1f} ms){}",
+               index_, why, result.written, result.written == 1 ? "" : "s", options_.save_dir,
+               result.bytes, result.seconds * 1e3,
+               result.failed == 0 ? "" : ", " + std::to_string(result.failed) + " failed");
+  return result;
+}
+
+}  // namespace nightjar::service
