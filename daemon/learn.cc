@@ -23,6 +23,7 @@
 
 #include "command.h"
 #include "commands.h"
+#include "config_errors.h"
 #include "config/config.h"
 #include "core/alert_json.h"
 #include "core/channel_pipeline.h"
@@ -55,14 +56,7 @@ int RunLearnCommand(const LearnFlags& flags) {
   options.reader.skip_bad_rows = flags.skip_bad_rows;
   if (!flags.config.empty()) {
     const config::LoadResult loaded = config::LoadConfigFile(flags.config);
-    if (!loaded.ok()) {
-      for (const config::ConfigError& error : loaded.errors) {
-        std::fprintf(stderr, "%s\n", error.ToString().c_str());
-      }
-      std::fprintf(stderr, "nightjar learn: %s has %zu error%s\n", flags.config.c_str(),
-                   loaded.errors.size(), loaded.errors.size() == 1 ? "" : "s");
-      return 1;
-    }
+    if (!loaded.ok()) return PrintConfigErrors("learn", flags.config, loaded);
     options.engine = loaded.config->engine;
     options.resolver = loaded.config->Resolver();
   }

@@ -28,6 +28,7 @@
 
 #include "command.h"
 #include "commands.h"
+#include "config_errors.h"
 #include "config/config.h"
 #include "replay/labels.h"
 #include "replay/residual_cache.h"
@@ -67,14 +68,6 @@ bool ReadWhole(const std::string& path, std::string* text) {
   return !in.bad();
 }
 
-int PrintConfigErrors(const config::LoadResult& loaded, const std::string& what) {
-  for (const config::ConfigError& error : loaded.errors) {
-    std::fprintf(stderr, "%s\n", error.ToString().c_str());
-  }
-  return Failure(what + " has " + std::to_string(loaded.errors.size()) + " error" +
-                 (loaded.errors.size() == 1 ? "" : "s"));
-}
-
 int RunTuneCommand(const TuneFlags& flags) {
   if (flags.input.empty()) return UsageError("--input is required");
   if (flags.out.empty()) return UsageError("--out is required");
@@ -90,7 +83,7 @@ int RunTuneCommand(const TuneFlags& flags) {
   source.input = flags.input;
   if (!flags.config.empty()) {
     const config::LoadResult loaded = config::LoadConfigFile(flags.config);
-    if (!loaded.ok()) return PrintConfigErrors(loaded, flags.config);
+    if (!loaded.ok()) return PrintConfigErrors("tune", flags.config, loaded);
     options.engine = loaded.config->engine;
     options.resolver = loaded.config->Resolver();
     source.config_path = flags.config;
@@ -128,7 +121,7 @@ int RunTuneCommand(const TuneFlags& flags) {
 
   // What we write must load: a tuned file that check-config rejects is a bug, not output.
   const config::LoadResult check = config::LoadConfigString(*text, flags.out);
-  if (!check.ok()) return PrintConfigErrors(check, "the tuned config (not written)");
+  if (!check.ok()) return PrintConfigErrors("tune", "the tuned config (not written)", check);
   {
     std::ofstream out(flags.out, std::ios::binary | std::ios::trunc);
     out << *text;
