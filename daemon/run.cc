@@ -1,13 +1,14 @@
 // `nightjar run`: the MQTT daemon. Subscribes to the configured sample topics, runs every
 // channel through its engine and publishes alerts, channel state and daemon status.
 //
-//   nightjar run --config FILE [--broker HOST:PORT] [--state-in DIR]
+//   nightjar run --config FILE [--broker HOST:PORT] [--state-in DIR] [--state-dir DIR]
 //
 // State: every channel's checkpoint (lib/state/FORMAT.md) is written to daemon.state_dir
 // every daemon.checkpoint_interval_s and on stop, and read back from it at start, so a
 // restarted channel is armed at once. --state-in DIR loads from DIR instead (e.g. the
 // output of `nightjar learn --state-out DIR`); checkpoints still go to daemon.state_dir.
-// A bad file is logged with its name and that channel starts fresh.
+// A bad file is logged with its name and that channel starts fresh. --state-dir DIR
+// overrides daemon.state_dir ("" = no checkpoints), e.g. for a demo or a second instance.
 //
 // Signals: the handlers only set flags; a 100 ms tick acts on them. SIGTERM or SIGINT
 // stops: intake closed, queues drained, status "offline" published, disconnect, exit 0.
@@ -75,6 +76,8 @@ struct RunFlags {
   std::string config;
   std::string broker;
   std::string state_in;
+  std::string state_dir;
+  CLI::Option* state_dir_option = nullptr;
 };
 
 core::TimestampUs WallClockUs() {
@@ -146,8 +149,12 @@ int RunDaemon(const RunFlags& flags) {
     }
     options.state_in = flags.state_in;
   }
-  if (daemon.state_dir.empty()) {
-    spdlog::info("daemon.state_dir is empty: what the channels learn is lost at stop");
+  if (flags.state_dir_option != nullptr && flags.state_dir_option->count() > 0) {
+    options.state_dir = flags.state_dir;
+  }
+  if (options.state_dir.empty()) {
+    spdlog::info("no state folder (daemon.state_dir or --state-dir is empty): what the channels "
+                 "learn is lost at stop");
   }
   if (!daemon.metrics_listen.empty()) {
     spdlog::warn("daemon.metrics_listen is set but this version serves no metrics yet");
@@ -231,6 +238,9 @@ Command AddRunCommand(CLI::App& app) {
   sub->add_option("--state-in", flags->state_in,
                   "Load channel checkpoints from DIR at start (e.g. nightjar learn --state-out) "
                   "instead of daemon.state_dir; checkpoints still go to daemon.state_dir");
+  flags->state_dir_option = sub->add_option(
+      "--state-dir", flags->state_dir,
+      "Write and read checkpoints in DIR instead of daemon.state_dir (\"\" = none)");
   return Command{sub, [flags] { return RunDaemon(*flags); }};
 }
 
