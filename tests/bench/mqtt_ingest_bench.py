@@ -181,7 +181,9 @@ def nightjar_config(mode, queue_capacity, metrics_port, workers):
         f"  forecaster: {forecaster}\n"
         "  warmup_samples: 200\n"
         "  sample_period_s: 1\n"
-        "  scaler: { warmup_samples: 20 }\n"
+        # The scaler's warm-up at its minimum, so the predictor runs from the third sample
+        # of a channel on (with 10 000 channels a burst holds only ~10 samples of each).
+        "  scaler: { warmup_samples: 2 }\n"
         "  sensor: { flatline_samples: 0, gap_periods: 100000 }\n"
         f"{predictor}"
         "channels: []\n"
