@@ -27,7 +27,9 @@ alert topic is taken on the same clock; the witness also subscribes to the sampl
 so the broker's own publish-to-delivery time of the same message is the baseline. If a
 raise needs more than one step sample (the detector's own delay), the next is sent after
 --step-wait-ms and the latency is counted from the sample that raised it; the sample count
-is reported separately. The other channels stay idle meanwhile.
+is reported separately. The other channels stay idle meanwhile. Caveat: a raise that comes
+later than --step-wait-ms after its sample is attributed to the next step sample, so the
+alert latency figures are cut off at that window; raise it to see slower raises whole.
 
 Usage:
   /usr/bin/python3 tests/bench/mqtt_ingest_bench.py --binary build/daemon/nightjar \
