@@ -16,7 +16,8 @@
 // otherwise channels whose options did not change keep what they learnt (mqtt: and
 // daemon: changes apply at the next start). Under systemd (Type=notify): READY=1 once
 // connected and subscribed, WATCHDOG=1 on the tick when a watchdog is set, STATUS= lines,
-// STOPPING=1 on stop.
+// STOPPING=1 on stop. With daemon.metrics_listen set, OpenMetrics text is served at
+// http://HOST:PORT/metrics (lib/service/metrics_server.h); a port in use is a start-up error.
 //
 // Logs go to stderr (journald keeps them): one line per connect, disconnect and reload,
 // one per alert, rate-limited lines for bad payloads and dropped samples.
@@ -40,6 +41,8 @@
 #include "commands.h"
 #include "config/config.h"
 #include "mqtt/mosquitto_client.h"
+#include "service/metrics_server.h"
+#include "service/metrics_text.h"
 #include "service/runtime.h"
 #include "service/service_options.h"
 #include "service/systemd_notifier.h"
@@ -156,9 +159,6 @@ int RunDaemon(const RunFlags& flags) {
     spdlog::info("no state folder (daemon.state_dir or --state-dir is empty): what the channels "
                  "learn is lost at stop");
   }
-  if (!daemon.metrics_listen.empty()) {
-    spdlog::warn("daemon.metrics_listen is set but this version serves no metrics yet");
-  }
 
   core::Result<std::unique_ptr<mqtt::MosquittoClient>> client =
       mqtt::MosquittoClient::Create(options.client);
@@ -168,14 +168,27 @@ int RunDaemon(const RunFlags& flags) {
   }
   const std::string host = options.client.host;
   const int port = options.client.port;
+  const std::optional<service::ListenAddress> metrics_listen = options.metrics_listen;
   core::Result<std::unique_ptr<service::Runtime>> runtime =
       service::Runtime::Create(std::move(options), config, **client, WallClockUs);
   if (!runtime.ok()) {
     spdlog::error("{}: {}", flags.config, runtime.status().message());
     return 1;
   }
-  InstallSignalHandlers();
   service::Runtime& rt = **runtime;
+  // Declared after the runtime, so it stops serving before the runtime goes away.
+  std::unique_ptr<service::MetricsServer> metrics_server;
+  if (metrics_listen) {
+    core::Result<std::unique_ptr<service::MetricsServer>> server = service::MetricsServer::Start(
+        *metrics_listen, [&rt] { return service::FormatMetrics(rt.metrics()); });
+    if (!server.ok()) {
+      spdlog::error("{}: daemon.metrics_listen: {}", flags.config, server.status().message());
+      return 1;
+    }
+    metrics_server = std::move(server).value();
+    spdlog::info("metrics: http://{}:{}/metrics", metrics_listen->host, metrics_server->port());
+  }
+  InstallSignalHandlers();
   if (core::Status s = rt.Start(); !s.ok()) {
     spdlog::error("cannot start: {}", s.message());
     return 1;

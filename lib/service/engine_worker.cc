@@ -130,6 +130,9 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
   view.sampled = true;
   view.dirty = true;
   PublishAlerts();
+  metrics_.latency.Record(std::chrono::duration_cast<std::chrono::nanoseconds>(
+                              std::chrono::steady_clock::now() - sample.arrived)
+                              .count());
   MaybePublishState(*id, now, false);
 }
 
@@ -199,6 +202,8 @@ void EngineWorker::PublishAlerts() {
     const core::Status s = bus_.Publish(topic_, payload_, topics_.qos, false);
     if (!s.ok()) spdlog::warn("alert not published: {}", s.message());
     alerts_published_.fetch_add(1, std::memory_order_relaxed);
+    metrics_.alerts_by_kind[static_cast<std::size_t>(alert.kind)].fetch_add(
+        1, std::memory_order_relaxed);
     spdlog::info("alert {} {} {} {}: {}", core::AlertPhaseName(alert.phase), alert.channel,
                  core::AlertKindName(alert.kind), core::DetectorName(alert.detector),
                  alert.message);
@@ -209,6 +214,16 @@ void EngineWorker::PublishAlerts() {
 void EngineWorker::MaybePublishState(core::ChannelId id, core::TimestampUs now, bool force) {
   ChannelView& view = views_[id];
   const core::ChannelStatus status = engine_.channel_status(id);
+  if (!view.counted || status.state != view.counted_state) {
+    if (view.counted) {
+      metrics_.channels_by_state[static_cast<std::size_t>(view.counted_state)].fetch_sub(
+          1, std::memory_order_relaxed);
+    }
+    metrics_.channels_by_state[static_cast<std::size_t>(status.state)].fetch_add(
+        1, std::memory_order_relaxed);
+    view.counted = true;
+    view.counted_state = status.state;
+  }
   const bool changed = !view.published || status.state != view.state;
   const auto interval = static_cast<core::TimestampUs>(topics_.publish_interval_s * 1e6);
   const bool due = view.dirty && (now >= view.published_at + interval || now < view.published_at);

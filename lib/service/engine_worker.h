@@ -43,6 +43,7 @@
 #pragma once
 
 #include <atomic>
+#include <chrono>
 #include <cstddef>
 #include <cstdint>
 #include <functional>
@@ -57,6 +58,7 @@
 #include "core/time.h"
 #include "mqtt/message_bus.h"
 #include "service/operator_command.h"
+#include "service/service_metrics.h"
 #include "service/work_queue.h"
 #include "service/worker_state.h"
 
@@ -66,6 +68,7 @@ struct SampleItem {
   std::string channel;
   core::TimestampUs time = 0;
   double value = 0.0;
+  std::chrono::steady_clock::time_point arrived{};  // at the network thread, for latency
 };
 struct CommandItem {
   ParsedCommand parsed;  // status OK
@@ -113,6 +116,8 @@ class EngineWorker {
   void StopAndJoin();
 
   WorkerCounters counters() const;
+  // Latency, alerts by kind, channels by state (for the metrics endpoint).
+  const WorkerMetrics& metrics() const { return metrics_; }
   std::size_t queued() const { return queue_.size(); }
 
  private:
@@ -124,6 +129,8 @@ class EngineWorker {
     core::TimestampUs last_sample = 0;
     bool dirty = false;    // values changed since the last publish
     bool sampled = false;  // false for a channel loaded from a file until its first sample
+    bool counted = false;  // counted_state is in metrics_.channels_by_state
+    core::ChannelState counted_state = core::ChannelState::kLearning;
   };
 
   void Run();
@@ -165,6 +172,7 @@ class EngineWorker {
   std::atomic<std::uint64_t> kept_{0};
   std::atomic<std::uint64_t> reset_{0};
   std::atomic<std::uint64_t> checkpoints_{0};
+  WorkerMetrics metrics_;
 };
 
 }  // namespace nightjar::service

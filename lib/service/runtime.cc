@@ -2,6 +2,8 @@
 
 #include <spdlog/spdlog.h>
 
+#include <chrono>
+
 #include "service/shard.h"
 
 namespace nightjar::service {
@@ -102,8 +104,12 @@ bool Runtime::IsOwnTopic(std::string_view topic) const {
 }
 
 void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double value) {
+  received_.fetch_add(1, std::memory_order_relaxed);
   EngineWorker& worker = *workers_[ShardFor(channel, workers_.size())];
-  if (worker.Offer(SampleItem{std::string(channel), time, value})) return;
+  if (worker.Offer(
+          SampleItem{std::string(channel), time, value, std::chrono::steady_clock::now()})) {
+    return;
+  }
   dropped_.fetch_add(1, std::memory_order_relaxed);
   mqtt::BadPayloadLog::Decision d;
   {
@@ -189,6 +195,29 @@ StatusCounters Runtime::counters() const {
   c.outbox = bus.outbox_size;
   c.reconnects = bus.reconnects;
   return c;
+}
+
+MetricsSnapshot Runtime::metrics() const {
+  MetricsSnapshot m;
+  for (const auto& worker : workers_) {
+    const WorkerCounters w = worker->counters();
+    m.samples_processed += w.samples;
+    m.samples_rejected += w.rejected;
+    const WorkerMetrics& wm = worker->metrics();
+    wm.latency.AddTo(m.latency);
+    for (std::size_t k = 0; k < kAlertKindCount; ++k) {
+      m.alerts_by_kind[k] += wm.alerts_by_kind[k].load(std::memory_order_relaxed);
+    }
+    for (std::size_t k = 0; k < kChannelStateCount; ++k) {
+      m.channels_by_state[k] += wm.channels_by_state[k].load(std::memory_order_relaxed);
+    }
+  }
+  const mqtt::IntakeStats intake = intake_->stats();
+  m.samples_received = received_.load(std::memory_order_relaxed);
+  m.samples_dropped = dropped_.load(std::memory_order_relaxed);
+  m.bad_payloads = intake.bad_payloads;
+  m.unmapped = intake.unmapped;
+  return m;
 }
 
 bool Runtime::ready() const {

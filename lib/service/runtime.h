@@ -22,9 +22,9 @@
 // config to every worker (engine_worker.h says what is kept); mqtt: and daemon: changes
 // need a restart.
 //
-// Thread-safety: Create/Start/Tick/Reload/Stop from one owner thread; counters() and
-// ready() from any thread. Ownership: owns the intake and workers; borrows the bus, which
-// must outlive the runtime (Stop() stops it).
+// Thread-safety: Create/Start/Tick/Reload/Stop from one owner thread; counters(),
+// metrics() and ready() from any thread. Ownership: owns the intake and workers; borrows the bus,
+// which must outlive the runtime (Stop() stops it).
 #pragma once
 
 #include <atomic>
@@ -43,6 +43,7 @@
 #include "mqtt/message_bus.h"
 #include "mqtt/sample_intake.h"
 #include "service/engine_worker.h"
+#include "service/metrics_text.h"
 #include "service/service_options.h"
 #include "service/state_json.h"
 
@@ -73,6 +74,8 @@ class Runtime {
   void Stop();
 
   StatusCounters counters() const;
+  // The metrics endpoint's figures, read from atomics (never waits for a worker).
+  MetricsSnapshot metrics() const;
   // Connected and every subscription acknowledged at least once.
   bool ready() const;
 
@@ -101,6 +104,7 @@ class Runtime {
 
   std::atomic<bool> status_due_{true};
   std::atomic<bool> stopping_{false};  // a lost connection is then the clean disconnect
+  std::atomic<std::uint64_t> received_{0};
   std::atomic<std::uint64_t> dropped_{0};
   std::atomic<std::uint64_t> commands_{0};
   std::atomic<std::uint64_t> reloads_{0};

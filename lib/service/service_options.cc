@@ -147,6 +147,14 @@ core::Result<ServiceOptions> BuildServiceOptions(const config::LoadedConfig& con
   o.workers = d.workers;
   o.queue_capacity = static_cast<std::size_t>(d.queue_capacity);
   o.publish_interval_s = d.publish_interval_s;
+  if (!d.metrics_listen.empty()) {
+    core::Result<ListenAddress> listen = ParseListenAddress(d.metrics_listen);
+    if (listen.ok()) {
+      o.metrics_listen = std::move(listen).value();
+    } else {
+      errors += Where(source, 0, 0, "daemon.metrics_listen") + listen.status().message() + "\n";
+    }
+  }
   if (!errors.empty()) {
     errors.pop_back();
     return core::Status::InvalidArgument(errors);

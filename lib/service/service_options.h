@@ -2,9 +2,10 @@
 //
 // BuildServiceOptions() turns the mqtt: and daemon: sections into the MQTT client's
 // options (last will and online announce on the status topic included), the intake
-// rules, and the runtime's topics and sizes. It checks what the config module cannot
-// (it does not know the MQTT module): topic patterns and channel templates compile, the
-// password file can be read. Errors name file:line:col and the key path, like the loader.
+// rules, the runtime's topics and sizes, and the metrics endpoint's address. It checks what the
+// config module cannot (it does not know the MQTT module): topic patterns and channel templates
+// compile, the password file can be read. Errors name file:line:col and the key path, like the
+// loader.
 //
 // Thread-safety: pure apart from reading the password file. Ownership: plain values.
 #pragma once
@@ -18,6 +19,7 @@
 #include "core/status.h"
 #include "mqtt/mosquitto_client.h"
 #include "mqtt/sample_intake.h"
+#include "service/metrics_server.h"
 
 namespace nightjar::service {
 
@@ -39,6 +41,7 @@ struct ServiceOptions {
   std::string state_dir;
   std::string state_in;
   double checkpoint_interval_s = 300.0;
+  std::optional<ListenAddress> metrics_listen;  // daemon.metrics_listen; none = off
 };
 
 // `source` is the config file's name for errors; `broker` ("HOST:PORT", "HOST" or

@@ -12,6 +12,7 @@
 #include <sys/un.h>
 
 #include <algorithm>
+#include <map>
 #include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
@@ -186,6 +187,110 @@ TEST(RunDaemonTest, StepRaisesOnceClearsOnceStateRetainedSigtermGoesOffline) {
   EXPECT_EQ(last["alerts"], 2);
   EXPECT_EQ(last["dropped"], 0);
   EXPECT_EQ(last["commands"], 2);
+}
+
+// Scrapes http://127.0.0.1:<port>/metrics with tests/daemon/scrape_openmetrics.py
+// (Python's urllib as the independent client; it checks the text line by line against
+// the OpenMetrics 1.0 format and that another path is 404) into a sample -> value map;
+// empty when the scrape or the check failed (*error says why).
+std::map<std::string, double> Scrape(const TestBroker& broker, int port, std::string* error) {
+  static int serial = 0;
+  const std::string out = broker.dir().File("scrape-" + std::to_string(++serial) + ".out");
+  const core::Status s = RunCommand(
+      {"/usr/bin/python3", std::string(NIGHTJAR_SOURCE_DIR) + "/tests/daemon/scrape_openmetrics.py",
+       "http://127.0.0.1:" + std::to_string(port)},
+      out);
+  std::map<std::string, double> samples;
+  if (!s.ok()) {
+    *error = s.message();
+    return samples;
+  }
+  const Json j = Json::parse(ReadFile(out), nullptr, false);
+  if (!j.is_object()) {
+    *error = "not a JSON object: " + ReadFile(out);
+    return samples;
+  }
+  for (auto it = j.begin(); it != j.end(); ++it) samples[it.key()] = it.value().get<double>();
+  return samples;
+}
+
+TEST(RunDaemonTest, MetricsEndpointCountsWhatWasSentAndParsesStrictly) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  const int port = FreeLocalPort();
+  ASSERT_GT(port, 0);
+  auto started = DaemonProcess::Start(
+      *broker, TestConfig() + "  metrics_listen: \"127.0.0.1:" + std::to_string(port) + "\"\n");
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+  ASSERT_TRUE(daemon.WaitLog("metrics: http://127.0.0.1:" + std::to_string(port) + "/metrics"));
+
+  std::string error;
+  std::map<std::string, double> m = Scrape(*broker, port, &error);
+  ASSERT_FALSE(m.empty()) << error;
+  EXPECT_EQ(m["nightjar_samples_received_total"], 0.0);
+  EXPECT_EQ(m["nightjar_sample_latency_seconds_count"], 0.0);
+
+  // 420 samples with a 20-sigma step from sample 400 (raises an anomaly), and one
+  // payload that is not JSON.
+  constexpr int kSent = 420;
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, kSent, 10.0, 400, 430)).ok());
+  ASSERT_TRUE(PublishOne(*broker, kFlowTopic, "not json").ok());
+  ASSERT_TRUE(WaitFor(
+      [&] {
+        m = Scrape(*broker, port, &error);
+        return m["nightjar_samples_processed_total"] == kSent &&
+               m["nightjar_payloads_bad_total"] == 1.0 &&
+               m["nightjar_alerts_published_total{kind=\"anomaly\"}"] >= 1.0 &&
+               m["nightjar_channels{state=\"in_alarm\"}"] == 1.0;
+      },
+      milliseconds(10000)))
+      << error << "\n"
+      << daemon.log();
+  EXPECT_EQ(m["nightjar_samples_received_total"], kSent);
+  EXPECT_EQ(m["nightjar_samples_dropped_total"], 0.0);
+  EXPECT_EQ(m["nightjar_sample_latency_seconds_count"], kSent);
+  EXPECT_EQ(m["nightjar_sample_latency_seconds_bucket{le=\"+Inf\"}"], kSent);
+  EXPECT_GT(m["nightjar_sample_latency_seconds_sum"], 0.0);
+  EXPECT_EQ(m["nightjar_channels{state=\"learning\"}"] + m["nightjar_channels{state=\"armed\"}"] +
+                m["nightjar_channels{state=\"in_alarm\"}"] +
+                m["nightjar_channels{state=\"stale\"}"],
+            1.0);
+  StopCleanly(daemon);
+}
+
+TEST(RunDaemonTest, MetricsPortInUseIsAStartupErrorNamingTheKey) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  // Someone else listens on the port first.
+  const int holder = ::socket(AF_INET, SOCK_STREAM, 0);
+  ASSERT_GE(holder, 0);
+  sockaddr_in addr{};
+  addr.sin_family = AF_INET;
+  addr.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+  addr.sin_port = 0;
+  socklen_t len = sizeof(addr);
+  ASSERT_EQ(::bind(holder, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)), 0);
+  ASSERT_EQ(::listen(holder, 1), 0);
+  ASSERT_EQ(::getsockname(holder, reinterpret_cast<sockaddr*>(&addr), &len), 0);
+  const int port = ntohs(addr.sin_port);
+
+  const std::string config_path = broker->dir().File("busy.yaml");
+  const std::string log_path = broker->dir().File("busy.log");
+  WriteFile(config_path,
+            TestConfig() + "  metrics_listen: \"127.0.0.1:" + std::to_string(port) + "\"\n");
+  auto child = ChildProcess::Spawn({NIGHTJAR_BINARY, "run", "--config", config_path, "--broker",
+                                    "127.0.0.1:" + std::to_string(broker->port())},
+                                   log_path);
+  ASSERT_TRUE(child.ok()) << child.status().message();
+  ASSERT_TRUE((*child)->WaitExit(milliseconds(10000))) << ReadFile(log_path);
+  ::close(holder);
+  EXPECT_EQ((*child)->exit_code(), 1);
+  const std::string log = ReadFile(log_path);
+  EXPECT_NE(log.find(config_path + ": daemon.metrics_listen: cannot listen on 127.0.0.1:" +
+                     std::to_string(port) + ": Address already in use"),
+            std::string::npos)
+      << log;
 }
 
 TEST(RunDaemonTest, BadPayloadsAreCountedWithoutAlarmStormOrLogFlood) {

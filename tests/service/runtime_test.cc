@@ -150,6 +150,23 @@ TEST(RuntimeTest, RoutesSamplesToWorkersAndPublishesAlertsStateAndReplies) {
   EXPECT_EQ(c.bad_payloads, 0u);
   EXPECT_EQ(c.commands, 1u);
   EXPECT_EQ(c.dropped, 0u);
+
+  // The metrics endpoint's figures agree with what was delivered and published.
+  const MetricsSnapshot m = rt.metrics();
+  EXPECT_EQ(m.samples_received, 1200u);
+  EXPECT_EQ(m.samples_processed, 1200u);
+  EXPECT_EQ(m.samples_dropped, 0u);
+  std::uint64_t latency_count = 0;
+  for (const std::uint64_t n : m.latency.counts) latency_count += n;
+  EXPECT_EQ(latency_count, 1200u);
+  EXPECT_GT(m.latency.sum, 0.0);
+  int alerts = 0;
+  for (const auto& p : published) alerts += p.topic.rfind("cw2/alert/", 0) == 0 ? 1 : 0;
+  EXPECT_EQ(m.alerts_by_kind[static_cast<std::size_t>(core::AlertKind::kAnomaly)],
+            static_cast<std::uint64_t>(alerts));
+  EXPECT_EQ(m.channels_by_state[static_cast<std::size_t>(core::ChannelState::kInAlarm)], 1);
+  EXPECT_EQ(m.channels_by_state[static_cast<std::size_t>(core::ChannelState::kArmed)], 3);
+  EXPECT_EQ(m.channels_by_state[static_cast<std::size_t>(core::ChannelState::kLearning)], 0);
 }
 
 // A full worker queue drops samples, counted, and never blocks the delivering (network)
@@ -221,6 +238,30 @@ TEST(ServiceOptionsTest, ErrorsNameFileLineAndKey) {
                                       "command topic"),
             std::string::npos)
       << r.status().message();
+}
+
+TEST(ServiceOptionsTest, MetricsListenIsCheckedAndNamesTheKey) {
+  std::string text = kConfig;
+  text += "  metrics_listen: \"localhost:9464\"\n";
+  auto config = Load(text);
+  ASSERT_TRUE(config);
+  core::Result<ServiceOptions> r = BuildServiceOptions(*config, "plant.yaml", std::nullopt);
+  ASSERT_FALSE(r.ok());
+  EXPECT_NE(r.status().message().find("plant.yaml: daemon.metrics_listen: 'localhost:9464': host "
+                                      "must be an IPv4 address"),
+            std::string::npos)
+      << r.status().message();
+
+  text = std::string(kConfig) + "  metrics_listen: \"127.0.0.1:9464\"\n";
+  config = Load(text);
+  ASSERT_TRUE(config);
+  r = BuildServiceOptions(*config, "plant.yaml", std::nullopt);
+  ASSERT_TRUE(r.ok()) << r.status().message();
+  ASSERT_TRUE(r->metrics_listen.has_value());
+  EXPECT_EQ(r->metrics_listen->host, "127.0.0.1");
+  EXPECT_EQ(r->metrics_listen->port, 9464);
+  EXPECT_FALSE(ParseListenAddress("127.0.0.1:65536").ok());
+  EXPECT_FALSE(ParseListenAddress("127.0.0.1").ok());
 }
 
 TEST(ServiceOptionsTest, BrokerFlagOverridesHostAndPort) {
