@@ -12,8 +12,8 @@ int PrintConfigErrors(std::string_view command, std::string_view path,
   }
   const std::string command_text(command);
   const std::string path_text(path);
-  std::fprintf(stderr, "nightjar %s: %s has %zu error%s\n", command_text.c_str(),
-               path_text.c_str(), loaded.errors.size(), loaded.errors.size() == 1 ? "" : "s");
+  std::fprintf(stderr, "nightjar %s: %s has %zu error%s\n", command_text.c_str(), path_text.c_str(),
+               loaded.errors.size(), loaded.errors.size() == 1 ? "" : "s");
   return 1;
 }
 

@@ -23,8 +23,8 @@
 
 #include "command.h"
 #include "commands.h"
-#include "config_errors.h"
 #include "config/config.h"
+#include "config_errors.h"
 #include "core/alert_json.h"
 #include "core/channel_pipeline.h"
 #include "replay/replay_runner.h"

@@ -42,8 +42,8 @@
 
 #include "command.h"
 #include "commands.h"
-#include "config_errors.h"
 #include "config/config.h"
+#include "config_errors.h"
 #include "replay/labels.h"
 #include "replay/recording_reader.h"
 #include "replay/replay_runner.h"

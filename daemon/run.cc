@@ -156,8 +156,9 @@ int RunDaemon(const RunFlags& flags) {
     options.state_dir = flags.state_dir;
   }
   if (options.state_dir.empty()) {
-    spdlog::info("no state folder (daemon.state_dir or --state-dir is empty): what the channels "
-                 "learn is lost at stop");
+    spdlog::info(
+        "no state folder (daemon.state_dir or --state-dir is empty): what the channels "
+        "learn is lost at stop");
   }
 
   core::Result<std::unique_ptr<mqtt::MosquittoClient>> client =

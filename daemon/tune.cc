@@ -28,8 +28,8 @@
 
 #include "command.h"
 #include "commands.h"
-#include "config_errors.h"
 #include "config/config.h"
+#include "config_errors.h"
 #include "replay/labels.h"
 #include "replay/residual_cache.h"
 #include "replay/threshold_sweep.h"
