@@ -75,6 +75,9 @@ core::Status Runtime::Start() {
   }
   if (core::Status s = bus_.Subscribe(options_.command_topic, 1); !s.ok()) return s;
   ++filter_count_;
+  // spdlog's registry is built on first use; build it here, before the workers log, so
+  // no two threads race to create it (TSan cannot see the guard inside libspdlog.so).
+  spdlog::default_logger_raw();
   for (auto& worker : workers_) worker->Start();
   {
     const std::lock_guard lock(handler_mutex_);
