@@ -65,6 +65,9 @@ class ResidualMonitor {
   void StartTailWindow() { tail_window_open_ = true; }
   static constexpr double kSpikeTailMargin = 1.2;
   bool armed() const { return armed_; }
+  // Largest trusted |z| since StartTailWindow() (frozen once armed): what Arm() raised the
+  // spike limit to cover. Read by the threshold sweep, which arms charts of its own.
+  double learning_tail() const { return learning_tail_; }
   const Thresholds& thresholds() const { return thresholds_; }
 
   // Standardises `residual` with the present scale and, when armed, updates the charts.

@@ -5,11 +5,14 @@
 #include <cmath>
 #include <cstdio>
 #include <limits>
+#include <optional>
 #include <span>
 #include <thread>
 #include <utility>
 
 #include "core/alarm.h"
+#include "core/cusum_detector.h"
+#include "core/ewma_detector.h"
 #include "core/residual_monitor.h"
 
 namespace nightjar::replay {
@@ -26,9 +29,7 @@ constexpr int kMaxClosedLoopSteps = 300;
 // moving a choice (each round either raises the overall F1 or only breaks ties).
 constexpr int kMaxAscentRounds = 8;
 
-// Settings re-run in lockstep by one task: enough independent work to keep the CPU's
-// units busy, small enough (about 20 KB of lane state) to stay in L1 and to spread
-// over threads.
+// Settings whose charts one task re-runs: enough to spread over threads.
 constexpr std::size_t kLanesPerTask = 36;
 
 std::string Number(double value) {
@@ -102,7 +103,14 @@ bool MoreSensitive(const SweepSetting& a, std::size_t a_index, const SweepSettin
 
 namespace {
 
-// One candidate being re-run: the charts, the alarm and the pipeline bookkeeping.
+// Settings whose charts advance together over one block of samples: the block's shared
+// inputs (5 doubles a sample) stay in L1/L2 while every lane reads them.
+constexpr std::size_t kBlockSamples = 2048;
+
+// One setting followed with its own learning gate, as ChannelPipeline::Process does from
+// the residual on: its own ResidualMonitor, alarm and closed-loop bookkeeping. The base
+// setting runs this way (it gives the gate every setting shares), and so does the
+// reference re-run EvaluateSettingOwnGate.
 struct Lane {
   explicit Lane(const core::ChannelOptions& lane_options)
       : options(lane_options), monitor(lane_options.residual), alarm(lane_options.anomaly_alarm) {}
@@ -111,23 +119,46 @@ struct Lane {
   core::Alarm alarm;
   bool held_out = false;
   int closed_loop_steps = 0;
-  bool cleared_now = false;  // the alarm cleared in this sample (shared steps)
   core::Status status;
   std::vector<core::TimestampUs> raises;
 };
 
-// One cached sample through one lane: ChannelPipeline::Process from the residual on.
-inline void Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
+// The pipeline's learning gate for one sample, in its two parts: trust (the alarm is not
+// active outside the re-sync hold and the sample is not flat) and the scale's 6-sigma test.
+struct Gate {
+  bool open = false;
+  bool within_sigmas = false;  // the scale is unsettled or |residual| < 6 sigma
+};
+
+inline bool Trusts(const core::Alarm& alarm, bool held_out, std::uint8_t flags) {
+  return (!alarm.active() || held_out) && (flags & kCachedFlatline) == 0;
+}
+
+inline bool WithinSigmas(const core::ResidualMonitor& monitor, double residual) {
+  return !monitor.scale_settled() || std::abs(residual / monitor.sigma()) < kLearnGateSigmas;
+}
+
+// The pipeline's closed-loop bookkeeping after a sample (held out of learning while in
+// alarm or suspect, re-synced after kMaxClosedLoopSteps).
+inline void Bookkeep(bool armed, bool in_alarm, double abs_z, bool& held_out,
+                     int& closed_loop_steps) {
+  if (!in_alarm && abs_z < kSuspectSigmas) held_out = false;
+  if (closed_loop_steps >= kMaxClosedLoopSteps) held_out = true;
+  const bool suspect = armed && !held_out && (in_alarm || abs_z >= kSuspectSigmas);
+  closed_loop_steps = suspect ? closed_loop_steps + 1 : 0;
+}
+
+// One cached sample through one lane; returns the gate it learnt with.
+inline Gate Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
                  core::ThresholdDesigner& designer) {
   const core::TimestampUs time = channel.times[i];
   const double residual = channel.residuals[i];
   const std::uint8_t flags = channel.flags[i];
   core::ResidualMonitor& monitor = lane.monitor;
-  const bool flatline = (flags & kCachedFlatline) != 0;
-  const bool trusted = (!lane.alarm.active() || lane.held_out) && !flatline;
-  const bool gate_open = trusted && (!monitor.scale_settled() ||
-                                     std::abs(residual / monitor.sigma()) < kLearnGateSigmas);
-  const core::ResidualReading reading = monitor.Observe(residual, gate_open);
+  Gate gate;
+  gate.within_sigmas = WithinSigmas(monitor, residual);
+  gate.open = Trusts(lane.alarm, lane.held_out, flags) && gate.within_sigmas;
+  const core::ResidualReading reading = monitor.Observe(residual, gate.open);
   if (monitor.armed()) {
     const core::AlarmEdge edge = lane.alarm.Update(time, reading.ratio);
     if (edge == core::AlarmEdge::kRaise) {
@@ -147,172 +178,317 @@ inline void Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
       }
     }
   }
-  const bool in_alarm = lane.alarm.active();
-  if (!in_alarm && std::abs(reading.z) < kSuspectSigmas) lane.held_out = false;
-  if (lane.closed_loop_steps >= kMaxClosedLoopSteps) lane.held_out = true;
-  const bool suspect =
-      monitor.armed() && !lane.held_out && (in_alarm || std::abs(reading.z) >= kSuspectSigmas);
-  lane.closed_loop_steps = suspect ? lane.closed_loop_steps + 1 : 0;
+  Bookkeep(monitor.armed(), lane.alarm.active(), std::abs(reading.z), lane.held_out,
+           lane.closed_loop_steps);
+  return gate;
 }
 
-// Step for lanes sharing `monitor` (their trust in this sample agrees): one Observe, then
-// each lane's alarm and bookkeeping. A clear in any lane resets only that lane's charts,
-// so the group forks (`fork`) before the reset.
-template <typename Fork, typename GroupT>
-void StepShared(core::ResidualMonitor& monitor, const std::vector<std::size_t>& members,
-                std::vector<Lane>& lanes, const ChannelResidualCache& channel, std::size_t i,
-                core::ThresholdDesigner& designer, const Fork& fork, GroupT& group) {
-  const core::TimestampUs time = channel.times[i];
-  const double residual = channel.residuals[i];
-  const std::uint8_t flags = channel.flags[i];
-  Lane& first = lanes[members.front()];
-  const bool flatline = (flags & kCachedFlatline) != 0;
-  const bool trusted = (!first.alarm.active() || first.held_out) && !flatline;
-  const bool gate_open = trusted && (!monitor.scale_settled() ||
-                                     std::abs(residual / monitor.sigma()) < kLearnGateSigmas);
-  const core::ResidualReading reading = monitor.Observe(residual, gate_open);
-  const bool armed = monitor.armed();
-  if (armed) {
-    bool cleared = false;
-    for (const std::size_t l : members) {
-      Lane& lane = lanes[l];
-      const core::AlarmEdge edge = lane.alarm.Update(time, reading.ratio);
-      if (edge == core::AlarmEdge::kRaise) lane.raises.push_back(time);
-      lane.cleared_now = edge == core::AlarmEdge::kClear;
-      cleared = cleared || lane.cleared_now;
-    }
-    if (cleared) {
-      fork(group);
-      for (const std::size_t l : members) {
-        if (lanes[l].cleared_now) lanes[l].monitor.ResetCharts();
-      }
-    }
-  } else {
-    if ((flags & kCachedTailWindow) != 0) monitor.StartTailWindow();
-    if ((flags & kCachedArmed) != 0) {
-      core::Result<core::Thresholds> thresholds =
-          designer.Design(first.options.thresholds, channel.armed_period_s);
-      if (thresholds.ok()) {
-        monitor.Arm(*thresholds);
-      } else {
-        for (const std::size_t l : members) {
-          if (lanes[l].status.ok()) lanes[l].status = thresholds.status();
-        }
-      }
-    }
-  }
-  for (const std::size_t l : members) {
-    Lane& lane = lanes[l];
-    const bool in_alarm = lane.alarm.active();
-    if (!in_alarm && std::abs(reading.z) < kSuspectSigmas) lane.held_out = false;
-    if (lane.closed_loop_steps >= kMaxClosedLoopSteps) lane.held_out = true;
-    const bool suspect =
-        armed && !lane.held_out && (in_alarm || std::abs(reading.z) >= kSuspectSigmas);
-    lane.closed_loop_steps = suspect ? lane.closed_loop_steps + 1 : 0;
-  }
-}
+// Bits of SharedLearning::gate.
+constexpr std::uint8_t kBaseGateOpen = 1;
+constexpr std::uint8_t kWithinSigmas = 2;
 
-}  // namespace
+// What every setting of one channel shares: the scale, autocorrelation and inflation
+// learning along the base setting's learning gate, as the chart inputs it gives. Indexed
+// by sample; only samples after `armed_at` are charted.
+struct SharedLearning {
+  std::size_t armed_at = 0;  // the sample after whose Observe the charts are armed
+  bool armed = false;        // false: the channel never armed, nothing is charted
+  double learning_tail = 0.0;
+  std::vector<double> abs_z;
+  std::vector<double> cusum_input;
+  std::vector<double> lambdas;                  // the distinct ewma_lambda values
+  std::vector<std::vector<double>> ewma_input;  // per lambda
+  std::vector<std::uint8_t> gate;
+};
 
-std::vector<core::Result<std::vector<core::TimestampUs>>> EvaluateSettings(
-    const ChannelResidualCache& channel, std::span<const SweepSetting> settings,
-    core::ThresholdDesigner& designer) {
-  std::vector<core::Result<std::vector<core::TimestampUs>>> results;
-  std::vector<Lane> lanes;
-  std::vector<std::size_t> lane_of(settings.size(), settings.size());
-  lanes.reserve(settings.size());
+// Options of the settings that can run (valid keys); nullopt for the others.
+std::vector<std::optional<core::ChannelOptions>> ValidOptions(
+    const ChannelResidualCache& channel, std::span<const SweepSetting> settings) {
+  std::vector<std::optional<core::ChannelOptions>> valid(settings.size());
   for (std::size_t s = 0; s < settings.size(); ++s) {
-    const core::ChannelOptions options = WithSetting(channel.options, settings[s]);
-    if (core::Status valid = core::ValidateThresholdOptions(options.thresholds); !valid.ok()) {
-      continue;
-    }
-    if (core::Status valid = core::ValidateAlarmTiming(options.anomaly_alarm); !valid.ok()) {
-      continue;
-    }
-    lane_of[s] = lanes.size();
-    lanes.emplace_back(options);
+    core::ChannelOptions options = WithSetting(channel.options, settings[s]);
+    if (!core::ValidateThresholdOptions(options.thresholds).ok()) continue;
+    if (!core::ValidateAlarmTiming(options.anomaly_alarm).ok()) continue;
+    valid[s] = std::move(options);
   }
-  // Lanes that differ only in the on-delay have the same charts: they share one monitor
-  // (a group) until their alarms first disagree on whether a sample may be learnt or a
-  // chart is reset; then each takes a copy of the shared monitor and goes on alone.
-  struct Group {
-    std::vector<std::size_t> members;
-    core::ResidualMonitor monitor;
-    bool shared = true;
-  };
-  std::vector<Group> groups;
-  for (std::size_t l = 0; l < lanes.size(); ++l) {
-    const core::ThresholdOptions& mine = lanes[l].options.thresholds;
-    auto found = std::find_if(groups.begin(), groups.end(), [&](const Group& group) {
-      const core::ThresholdOptions& theirs = lanes[group.members.front()].options.thresholds;
-      return theirs.false_alarms_per_day == mine.false_alarms_per_day &&
-             theirs.cusum_k == mine.cusum_k && theirs.ewma_lambda == mine.ewma_lambda;
-    });
-    if (found == groups.end()) {
-      groups.push_back(Group{{}, core::ResidualMonitor(lanes[l].options.residual), true});
-      found = groups.end() - 1;
-    }
-    found->members.push_back(l);
-  }
-  const auto fork = [&lanes](Group& group) {
-    for (const std::size_t l : group.members) lanes[l].monitor = group.monitor;
-    group.shared = false;
-  };
+  return valid;
+}
 
-  // All lanes advance together, sample by sample: their chains of dependent divisions
-  // and square roots are independent, so the CPU overlaps them.
+core::Status InvalidSetting(const ChannelResidualCache& channel, const SweepSetting& setting) {
+  const core::ChannelOptions options = WithSetting(channel.options, setting);
+  core::Status invalid = core::ValidateThresholdOptions(options.thresholds);
+  if (invalid.ok()) {
+    invalid = core::Status::InvalidArgument(
+        "anomaly_alarm." + core::ValidateAlarmTiming(options.anomaly_alarm).message());
+  }
+  return invalid;
+}
+
+// The base setting with its own gate (recorded) and one learner ResidualMonitor per
+// lambda learning along that gate. A learner's charts are never read: its thresholds only
+// have to carry its lambda, which is what Arm() measures the EWMA's spread at afresh.
+SharedLearning Learn(const ChannelResidualCache& channel,
+                     std::span<const std::optional<core::ChannelOptions>> valid,
+                     core::ThresholdDesigner& designer) {
+  SharedLearning shared;
   const std::size_t n = channel.times.size();
+  for (const std::optional<core::ChannelOptions>& options : valid) {
+    if (!options) continue;
+    const double lambda = options->thresholds.ewma_lambda;
+    if (std::find(shared.lambdas.begin(), shared.lambdas.end(), lambda) == shared.lambdas.end()) {
+      shared.lambdas.push_back(lambda);
+    }
+  }
+  Lane base(channel.options);
+  std::vector<core::ResidualMonitor> learners(shared.lambdas.size(),
+                                              core::ResidualMonitor(channel.options.residual));
+  const bool correct = channel.options.residual.correct_autocorrelation;
+  shared.abs_z.resize(n);
+  shared.cusum_input.resize(n);
+  shared.gate.resize(n);
+  shared.ewma_input.assign(shared.lambdas.size(), std::vector<double>(n));
   for (std::size_t i = 0; i < n; ++i) {
-    for (Group& group : groups) {
-      if (group.shared) {
-        const bool flatline = (channel.flags[i] & kCachedFlatline) != 0;
-        const auto trusts = [&](const Lane& lane) {
-          return (!lane.alarm.active() || lane.held_out) && !flatline;
-        };
-        const bool trusted = trusts(lanes[group.members.front()]);
-        for (const std::size_t l : group.members) {
-          if (trusts(lanes[l]) != trusted) {
-            fork(group);
-            break;
-          }
+    const Gate gate = Step(base, channel, i, designer);
+    shared.gate[i] = static_cast<std::uint8_t>((gate.open ? kBaseGateOpen : 0) |
+                                               (gate.within_sigmas ? kWithinSigmas : 0));
+    const double residual = channel.residuals[i];
+    for (std::size_t l = 0; l < learners.size(); ++l) {
+      core::ResidualMonitor& learner = learners[l];
+      const double z = learner.Observe(residual, gate.open).z;
+      // Exactly the chart inputs ResidualMonitor::Observe computes for an armed monitor.
+      if (l == 0) {
+        shared.abs_z[i] = std::abs(z);
+        shared.cusum_input[i] = correct ? z / learner.cusum_inflation() : z;
+      }
+      shared.ewma_input[l][i] = correct ? z / learner.ewma_inflation() : z;
+      if (shared.armed) continue;
+      if ((channel.flags[i] & kCachedTailWindow) != 0) learner.StartTailWindow();
+      if ((channel.flags[i] & kCachedArmed) != 0) {
+        core::Thresholds carrier;
+        carrier.cusum_h = 1.0;
+        carrier.ewma_lambda = shared.lambdas[l];
+        carrier.ewma_l = 1.0;
+        carrier.spike_limit = 1.0;
+        learner.Arm(carrier);
+        if (l + 1 == learners.size()) {
+          shared.armed = true;
+          shared.armed_at = i;
+          shared.learning_tail = learner.learning_tail();
         }
       }
-      if (!group.shared) {
-        for (const std::size_t l : group.members) Step(lanes[l], channel, i, designer);
+    }
+  }
+  return shared;
+}
+
+// One setting's CUSUM, EWMA and spike charts, reduced to what the alarm ratio needs and
+// inlined into the sweep's loop: the arithmetic of core::CusumDetector::Add and ratio()
+// (target 0, sigma 1) and core::EwmaDetector::Add and ratio() (exact limits), operation
+// for operation, so the ratios are bitwise those of the monitor's charts; the parameters
+// are read back from core detectors built as ResidualMonitor::Arm builds them, so their
+// range clamping is the core's too. The base-reproduction and own-gate tests fail if this
+// drifts from lib/core. (The core calls build a full Reading per sample; that was most of
+// a setting's cost.)
+class Charts {
+ public:
+  Charts() = default;
+  Charts(const core::CusumDetector& cusum, const core::EwmaDetector& ewma, double spike_limit)
+      : k_(cusum.k() * cusum.sigma()),
+        h_(cusum.h() * cusum.sigma()),
+        ceiling_(cusum.cap() * cusum.h() * cusum.sigma()),
+        lambda_(ewma.lambda()),
+        keep_(1.0 - ewma.lambda()),
+        decay_step_((1.0 - ewma.lambda()) * (1.0 - ewma.lambda())),
+        width_(ewma.limit_factor() * ewma.sigma() *
+               std::sqrt(ewma.lambda() / (2.0 - ewma.lambda()))),
+        spike_limit_(spike_limit) {}
+
+  // The alarm ratio after one sample: the largest of the three charts' ratios, as
+  // ResidualMonitor::Observe forms it.
+  double Add(double cusum_input, double ewma_input, double abs_z) {
+    if (std::isfinite(cusum_input)) {
+      const double up = cusum_input - k_;
+      const double down = -cusum_input - k_;
+      upper_ = std::min(std::max(0.0, upper_ + up), ceiling_);
+      lower_ = std::min(std::max(0.0, lower_ + down), ceiling_);
+    }
+    if (std::isfinite(ewma_input)) {
+      z_ = lambda_ * ewma_input + keep_ * z_;
+      started_ = true;
+      decay_ *= decay_step_;
+      if (decay_ < kDecayFlush) decay_ = 0.0;
+    }
+    double ratio = std::max(upper_, lower_) / h_;
+    if (started_) {
+      const double width = width_ * std::sqrt(1.0 - decay_);
+      if (width > 0.0) {
+        if (const double r = std::abs(z_) / width; r > ratio) ratio = r;
+      }
+    }
+    if (const double r = abs_z / spike_limit_; r > ratio) ratio = r;
+    return ratio;
+  }
+
+  void Reset() {
+    upper_ = lower_ = 0.0;
+    z_ = 0.0;
+    started_ = false;
+    decay_ = 1.0;
+  }
+
+ private:
+  static constexpr double kDecayFlush = 1e-20;  // core::EwmaDetector's
+  double k_ = 0.5;
+  double h_ = 1.0;
+  double ceiling_ = 1.0;
+  double lambda_ = 0.1;
+  double keep_ = 0.9;
+  double decay_step_ = 0.81;
+  double width_ = 1.0;
+  double spike_limit_ = 1.0;
+  double upper_ = 0.0;
+  double lower_ = 0.0;
+  double z_ = 0.0;
+  bool started_ = false;
+  double decay_ = 1.0;
+};
+
+// One setting on the shared chart inputs: its charts, its own core::Alarm, and its own
+// gate's bookkeeping to tell where that gate departs from the base's.
+struct ChartLane {
+  explicit ChartLane(const core::ChannelOptions& options) : alarm(options.anomaly_alarm) {}
+  Charts charts;
+  std::size_t lambda = 0;  // index into SharedLearning::lambdas
+  core::Alarm alarm;
+  bool quiet = true;  // inactive with no on-delay pending: a ratio below 1 changes nothing
+  bool held_out = false;
+  int closed_loop_steps = 0;
+  bool departed = false;
+  SettingRaises result;
+};
+
+// Runs lanes [lanes) over samples [from, to).
+void ChartBlock(std::vector<ChartLane>& lanes, const ChannelResidualCache& channel,
+                const SharedLearning& shared, std::size_t from, std::size_t to) {
+  const core::TimestampUs* times = channel.times.data();
+  const std::uint8_t* flags = channel.flags.data();
+  const double* abs_z = shared.abs_z.data();
+  const double* cusum_input = shared.cusum_input.data();
+  const std::uint8_t* gate = shared.gate.data();
+  for (ChartLane& lane : lanes) {
+    const double* ewma_input = shared.ewma_input[lane.lambda].data();
+    for (std::size_t i = from; i < to; ++i) {
+      if (!lane.departed) {
+        const bool own_open =
+            Trusts(lane.alarm, lane.held_out, flags[i]) && (gate[i] & kWithinSigmas) != 0;
+        if (own_open != ((gate[i] & kBaseGateOpen) != 0)) {
+          lane.departed = true;
+          lane.result.own_gate_departs = times[i];
+        }
+      }
+      const double ratio = lane.charts.Add(cusum_input[i], ewma_input[i], abs_z[i]);
+      // Update only when it can change something: inactive with nothing pending and a
+      // ratio below 1 (or NaN) it would only note the time (the cache's times increase).
+      if (!lane.quiet || ratio >= 1.0) {
+        const core::AlarmEdge edge = lane.alarm.Update(times[i], ratio);
+        if (edge == core::AlarmEdge::kRaise) {
+          lane.result.raises.push_back(times[i]);
+        } else if (edge == core::AlarmEdge::kClear) {
+          lane.charts.Reset();
+        }
+        lane.quiet = !lane.alarm.active() && !lane.alarm.condition_since().has_value();
+      }
+      if (!lane.departed) {
+        Bookkeep(true, lane.alarm.active(), abs_z[i], lane.held_out, lane.closed_loop_steps);
+      }
+    }
+  }
+}
+
+std::vector<core::Result<SettingRaises>> RunCharts(
+    const ChannelResidualCache& channel, const SharedLearning& shared,
+    std::span<const SweepSetting> settings,
+    std::span<const std::optional<core::ChannelOptions>> valid, core::ThresholdDesigner& designer) {
+  std::vector<core::Result<SettingRaises>> results;
+  results.reserve(settings.size());
+  std::vector<ChartLane> lanes;
+  std::vector<std::size_t> lane_of(settings.size(), settings.size());
+  std::vector<core::Status> failed(settings.size());
+  for (std::size_t s = 0; s < settings.size(); ++s) {
+    if (!valid[s]) continue;
+    ChartLane lane(*valid[s]);
+    if (shared.armed) {
+      core::Result<core::Thresholds> thresholds =
+          designer.Design(valid[s]->thresholds, channel.armed_period_s);
+      if (!thresholds.ok()) {
+        failed[s] = thresholds.status();
         continue;
       }
-      StepShared(group.monitor, group.members, lanes, channel, i, designer, fork, group);
+      // As ResidualMonitor::Arm builds its charts.
+      core::CusumDetector cusum(thresholds->cusum_k, thresholds->cusum_h);
+      (void)cusum.set_cap(valid[s]->residual.cusum_cap);
+      const core::EwmaDetector ewma(thresholds->ewma_lambda, thresholds->ewma_l);
+      lane.charts =
+          Charts(cusum, ewma,
+                 std::max(thresholds->spike_limit,
+                          core::ResidualMonitor::kSpikeTailMargin * shared.learning_tail));
+      lane.lambda = static_cast<std::size_t>(
+          std::find(shared.lambdas.begin(), shared.lambdas.end(), thresholds->ewma_lambda) -
+          shared.lambdas.begin());
+      // The arming sample's own bookkeeping (the pipeline counts it as armed).
+      Bookkeep(true, false, shared.abs_z[shared.armed_at], lane.held_out, lane.closed_loop_steps);
+    }
+    lane_of[s] = lanes.size();
+    lanes.push_back(std::move(lane));
+  }
+  if (shared.armed) {
+    const std::size_t n = channel.times.size();
+    for (std::size_t from = shared.armed_at + 1; from < n; from += kBlockSamples) {
+      ChartBlock(lanes, channel, shared, from, std::min(n, from + kBlockSamples));
     }
   }
-  results.reserve(settings.size());
   for (std::size_t s = 0; s < settings.size(); ++s) {
-    if (lane_of[s] == settings.size()) {
-      const core::ChannelOptions options = WithSetting(channel.options, settings[s]);
-      core::Status invalid = core::ValidateThresholdOptions(options.thresholds);
-      if (invalid.ok()) {
-        invalid = core::Status::InvalidArgument(
-            "anomaly_alarm." + core::ValidateAlarmTiming(options.anomaly_alarm).message());
-      }
-      results.emplace_back(invalid);
-      continue;
-    }
-    Lane& lane = lanes[lane_of[s]];
-    if (!lane.status.ok()) {
-      results.emplace_back(lane.status);
+    if (!valid[s]) {
+      results.emplace_back(InvalidSetting(channel, settings[s]));
+    } else if (!failed[s].ok()) {
+      results.emplace_back(failed[s]);
     } else {
-      results.emplace_back(std::move(lane.raises));
+      results.emplace_back(std::move(lanes[lane_of[s]].result));
     }
   }
   return results;
 }
 
+}  // namespace
+
+std::vector<core::Result<SettingRaises>> EvaluateSettings(const ChannelResidualCache& channel,
+                                                          std::span<const SweepSetting> settings,
+                                                          core::ThresholdDesigner& designer) {
+  const std::vector<std::optional<core::ChannelOptions>> valid = ValidOptions(channel, settings);
+  const SharedLearning shared = Learn(channel, valid, designer);
+  return RunCharts(channel, shared, settings, valid, designer);
+}
+
 core::Result<std::vector<core::TimestampUs>> EvaluateSetting(const ChannelResidualCache& channel,
                                                              const SweepSetting& setting,
                                                              core::ThresholdDesigner& designer) {
-  return std::move(
-      EvaluateSettings(channel, std::span<const SweepSetting>(&setting, 1), designer)[0]);
+  core::Result<SettingRaises> run =
+      std::move(EvaluateSettings(channel, std::span<const SweepSetting>(&setting, 1), designer)[0]);
+  if (!run.ok()) return run.status();
+  return std::move(run->raises);
 }
 
+core::Result<std::vector<core::TimestampUs>> EvaluateSettingOwnGate(
+    const ChannelResidualCache& channel, const SweepSetting& setting,
+    core::ThresholdDesigner& designer) {
+  const std::vector<std::optional<core::ChannelOptions>> valid =
+      ValidOptions(channel, std::span<const SweepSetting>(&setting, 1));
+  if (!valid[0]) return InvalidSetting(channel, setting);
+  Lane lane(*valid[0]);
+  for (std::size_t i = 0; i < channel.times.size(); ++i) Step(lane, channel, i, designer);
+  if (!lane.status.ok()) return lane.status;
+  return std::move(lane.raises);
+}
 core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOptions& options) {
   if (!(options.max_alarms_per_day > 0.0) || !std::isfinite(options.max_alarms_per_day)) {
     return core::Status::InvalidArgument("max_alarms_per_day: must be a number > 0");
@@ -336,8 +512,33 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
     mine.raises.resize(mine.settings.size());
   }
 
-  // Every (channel, setting) re-run is independent: chunks of one channel's settings run
-  // in lockstep (EvaluateSettings) and the chunks are handed out to the threads.
+  // Two passes over the threads. First, per channel, the learning every setting shares
+  // (the base setting's gate, the scale and inflation trajectory per lambda); then chunks
+  // of one channel's settings re-run only their charts and alarms on it.
+  const int jobs = std::max(1, options.jobs);
+  std::vector<core::ThresholdDesigner> designers(static_cast<std::size_t>(jobs));
+  const auto parallel = [&](std::size_t count, const auto& task) {
+    std::atomic<std::size_t> next{0};
+    const auto work = [&](core::ThresholdDesigner& designer) {
+      for (std::size_t t = next.fetch_add(1); t < count; t = next.fetch_add(1)) task(t, designer);
+    };
+    if (jobs == 1) {
+      work(designers[0]);
+      return;
+    }
+    std::vector<std::thread> threads;
+    for (core::ThresholdDesigner& designer : designers) {
+      threads.emplace_back([&work, &designer] { work(designer); });
+    }
+    for (std::thread& thread : threads) thread.join();
+  };
+  std::vector<std::vector<std::optional<core::ChannelOptions>>> valid(channel_count);
+  std::vector<SharedLearning> learned(channel_count);
+  parallel(channel_count, [&](std::size_t c, core::ThresholdDesigner& designer) {
+    valid[c] = ValidOptions(cache.channels[c], candidates[c].settings);
+    learned[c] = Learn(cache.channels[c], valid[c], designer);
+  });
+
   struct Task {
     std::size_t channel;
     std::size_t first;
@@ -352,28 +553,19 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
       tasks.push_back({c, first, std::min(kLanesPerTask, total - first)});
     }
   }
-  std::atomic<std::size_t> next{0};
-  const auto work = [&] {
-    core::ThresholdDesigner designer;
-    for (std::size_t t = next.fetch_add(1); t < tasks.size(); t = next.fetch_add(1)) {
-      const Task task = tasks[t];
-      Candidates& mine = candidates[task.channel];
-      std::vector<core::Result<std::vector<core::TimestampUs>>> raised = EvaluateSettings(
-          cache.channels[task.channel],
-          std::span<const SweepSetting>(mine.settings).subspan(task.first, task.count), designer);
-      for (std::size_t s = 0; s < task.count; ++s) {
-        if (raised[s].ok()) mine.raises[task.first + s] = std::move(*raised[s]);
-      }
+  parallel(tasks.size(), [&](std::size_t t, core::ThresholdDesigner& designer) {
+    const Task task = tasks[t];
+    Candidates& mine = candidates[task.channel];
+    std::vector<core::Result<SettingRaises>> raised =
+        RunCharts(cache.channels[task.channel], learned[task.channel],
+                  std::span<const SweepSetting>(mine.settings).subspan(task.first, task.count),
+                  std::span<const std::optional<core::ChannelOptions>>(valid[task.channel])
+                      .subspan(task.first, task.count),
+                  designer);
+    for (std::size_t s = 0; s < task.count; ++s) {
+      if (raised[s].ok()) mine.raises[task.first + s] = std::move(raised[s]->raises);
     }
-  };
-  const int jobs = std::max(1, options.jobs);
-  if (jobs == 1) {
-    work();
-  } else {
-    std::vector<std::thread> threads;
-    for (int j = 0; j < jobs; ++j) threads.emplace_back(work);
-    for (std::thread& thread : threads) thread.join();
-  }
+  });
 
   SweepResult result;
   result.labelled = options.labels.has_value();

@@ -1,6 +1,8 @@
 // Threshold tuning on cached residuals: the re-run of the base setting reproduces the base
 // replay's anomaly raises at the same times (the exactness the sweep claims in
-// threshold_sweep.h), the default grid, the selection rules of replay_data/FORMAT.md
+// threshold_sweep.h), every other setting matches a re-run that learns along its own gate
+// up to where that gate departs from the base's (the bound the sweep claims), the default
+// grid, the selection rules of replay_data/FORMAT.md
 // "Tuning", and the tuned config loading with lib/config.
 //
 // Outside sources: the reference for the exactness tests is the engine itself (RunReplay
@@ -18,6 +20,7 @@
 #include <cstdio>
 #include <fstream>
 #include <numbers>
+#include <optional>
 #include <random>
 #include <string>
 #include <vector>
@@ -81,6 +84,10 @@ void ExpectBaseReproduced(const ResidualCache& cache) {
         EvaluateSetting(channel, SettingOf(channel.options), designer);
     ASSERT_TRUE(raises.ok()) << raises.status().message();
     EXPECT_EQ(*raises, channel.base_anomaly_raises) << channel.name;
+    core::Result<std::vector<core::TimestampUs>> own =
+        EvaluateSettingOwnGate(channel, SettingOf(channel.options), designer);
+    ASSERT_TRUE(own.ok()) << own.status().message();
+    EXPECT_EQ(*own, channel.base_anomaly_raises) << channel.name;
   }
 }
 
@@ -137,8 +144,51 @@ TEST(ThresholdSweepTest, LockstepGivesWhatOneAtATimeGives) {
   for (std::size_t s = 0; s < grid.size(); s += 7) {
     const auto alone = EvaluateSetting(cache->channels[0], grid[s], designer);
     ASSERT_TRUE(alone.ok() && together[s].ok());
-    EXPECT_EQ(*alone, *together[s]) << DescribeSetting(grid[s]);
+    EXPECT_EQ(*alone, together[s]->raises) << DescribeSetting(grid[s]);
   }
+}
+
+std::vector<core::TimestampUs> Before(const std::vector<core::TimestampUs>& raises,
+                                      std::optional<core::TimestampUs> end) {
+  std::vector<core::TimestampUs> kept;
+  for (const core::TimestampUs t : raises) {
+    if (!end || t < *end) kept.push_back(t);
+  }
+  return kept;
+}
+
+TEST(ThresholdSweepTest, SharedLearningIsExactUpToWhereASettingsOwnGateDeparts) {
+  // Every grid setting on both channels against the reference re-run that learns along the
+  // setting's own gate: equal raises before the departure the sweep reports, and the base
+  // setting never departs. A step and a drift make alarms of different lengths, so some
+  // settings do depart (the bound is not vacuous).
+  const std::string path = WriteText("step.csv", StepCsv(4000, 1200, 600, 2600, 16));
+  core::Result<ResidualCache> cache = BuildResidualCache(path, FastOptions());
+  ASSERT_TRUE(cache.ok()) << cache.status().message();
+  const std::vector<SweepSetting> grid = DefaultSweepGrid();
+  core::ThresholdDesigner designer;
+  int departed = 0;
+  int compared_raises = 0;
+  for (const ChannelResidualCache& channel : cache->channels) {
+    const auto shared = EvaluateSettings(channel, grid, designer);
+    ASSERT_EQ(shared.size(), grid.size());
+    for (std::size_t s = 0; s < grid.size(); ++s) {
+      const auto own = EvaluateSettingOwnGate(channel, grid[s], designer);
+      ASSERT_TRUE(own.ok() && shared[s].ok()) << DescribeSetting(grid[s]);
+      const std::optional<core::TimestampUs> departs = shared[s]->own_gate_departs;
+      if (departs) ++departed;
+      if (grid[s] == SettingOf(channel.options)) {
+        EXPECT_FALSE(departs.has_value()) << channel.name;
+        EXPECT_EQ(shared[s]->raises, *own) << channel.name;
+      }
+      const std::vector<core::TimestampUs> expected = Before(*own, departs);
+      EXPECT_EQ(Before(shared[s]->raises, departs), expected)
+          << channel.name << ": " << DescribeSetting(grid[s]);
+      compared_raises += static_cast<int>(expected.size());
+    }
+  }
+  EXPECT_GT(departed, 0);
+  EXPECT_GT(compared_raises, 0);
 }
 
 TEST(ThresholdSweepTest, DefaultGridHasAbout100SettingsIncludingTheDefault) {
