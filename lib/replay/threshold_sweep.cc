@@ -301,11 +301,13 @@ class Charts {
         decay_step_((1.0 - ewma.lambda()) * (1.0 - ewma.lambda())),
         width_(ewma.limit_factor() * ewma.sigma() *
                std::sqrt(ewma.lambda() / (2.0 - ewma.lambda()))),
-        spike_limit_(spike_limit) {}
+        spike_limit_(spike_limit),
+        near_h_(kSurelyBelow * h_),
+        near_width_(kSurelyBelow * width_),
+        near_spike_(kSurelyBelow * spike_limit) {}
 
-  // The alarm ratio after one sample: the largest of the three charts' ratios, as
-  // ResidualMonitor::Observe forms it.
-  double Add(double cusum_input, double ewma_input, double abs_z) {
+  // One sample into the charts.
+  void Add(double cusum_input, double ewma_input) {
     if (std::isfinite(cusum_input)) {
       const double up = cusum_input - k_;
       const double down = -cusum_input - k_;
@@ -318,6 +320,20 @@ class Charts {
       decay_ *= decay_step_;
       if (decay_ < kDecayFlush) decay_ = 0.0;
     }
+  }
+
+  // True when ratio(abs_z) is certainly below 1, found without dividing: each chart's
+  // statistic is below kSurelyBelow times its limit. With a < 0.999 b as computed
+  // (relative error 2^-53), a / b < 1 - 2^-53, so its rounded quotient is below 1 too.
+  // False says nothing (ratio() decides); so is it while the EWMA's limits still widen.
+  bool SurelyBelowOne(double abs_z) const {
+    return std::max(upper_, lower_) < near_h_ && abs_z < near_spike_ &&
+           (!started_ || (decay_ == 0.0 && std::abs(z_) < near_width_));
+  }
+
+  // The alarm ratio: the largest of the three charts' ratios, as ResidualMonitor::Observe
+  // forms it.
+  double ratio(double abs_z) const {
     double ratio = std::max(upper_, lower_) / h_;
     if (started_) {
       const double width = width_ * std::sqrt(1.0 - decay_);
@@ -338,6 +354,7 @@ class Charts {
 
  private:
   static constexpr double kDecayFlush = 1e-20;  // core::EwmaDetector's
+  static constexpr double kSurelyBelow = 0.999;
   double k_ = 0.5;
   double h_ = 1.0;
   double ceiling_ = 1.0;
@@ -346,6 +363,9 @@ class Charts {
   double decay_step_ = 0.81;
   double width_ = 1.0;
   double spike_limit_ = 1.0;
+  double near_h_ = 0.0;  // kSurelyBelow times the limits
+  double near_width_ = 0.0;
+  double near_spike_ = 0.0;
   double upper_ = 0.0;
   double lower_ = 0.0;
   double z_ = 0.0;
@@ -367,40 +387,54 @@ struct ChartLane {
   SettingRaises result;
 };
 
-// Runs lanes [lanes) over samples [from, to).
-void ChartBlock(std::vector<ChartLane>& lanes, const ChannelResidualCache& channel,
-                const SharedLearning& shared, std::size_t from, std::size_t to) {
+// Lanes interleaved sample by sample: each lane's charts are a chain of dependent
+// operations, so a few lanes side by side keep the CPU busy while one waits.
+constexpr std::size_t kInterleavedLanes = 4;
+
+// One charted sample through one lane.
+inline void ChartStep(ChartLane& lane, const ChannelResidualCache& channel,
+                      const SharedLearning& shared, std::size_t i) {
   const core::TimestampUs* times = channel.times.data();
   const std::uint8_t* flags = channel.flags.data();
   const double* abs_z = shared.abs_z.data();
   const double* cusum_input = shared.cusum_input.data();
+  const double* ewma_input = shared.ewma_input[lane.lambda].data();
   const std::uint8_t* gate = shared.gate.data();
-  for (ChartLane& lane : lanes) {
-    const double* ewma_input = shared.ewma_input[lane.lambda].data();
+  if (!lane.departed) {
+    const bool own_open =
+        Trusts(lane.alarm, lane.held_out, flags[i]) && (gate[i] & kWithinSigmas) != 0;
+    if (own_open != ((gate[i] & kBaseGateOpen) != 0)) {
+      lane.departed = true;
+      lane.result.own_gate_departs = times[i];
+    }
+  }
+  lane.charts.Add(cusum_input[i], ewma_input[i]);
+  // Inactive with nothing pending, a ratio below 1 (or NaN) changes nothing in the
+  // alarm but the time it has seen last (the cache's times increase): skip it.
+  if (!lane.quiet || !lane.charts.SurelyBelowOne(abs_z[i])) {
+    const double ratio = lane.charts.ratio(abs_z[i]);
+    if (!lane.quiet || ratio >= 1.0) {
+      const core::AlarmEdge edge = lane.alarm.Update(times[i], ratio);
+      if (edge == core::AlarmEdge::kRaise) {
+        lane.result.raises.push_back(times[i]);
+      } else if (edge == core::AlarmEdge::kClear) {
+        lane.charts.Reset();
+      }
+      lane.quiet = !lane.alarm.active() && !lane.alarm.condition_since().has_value();
+    }
+  }
+  if (!lane.departed) {
+    Bookkeep(true, lane.alarm.active(), abs_z[i], lane.held_out, lane.closed_loop_steps);
+  }
+}
+
+// Runs `lanes` over samples [from, to).
+void ChartBlock(std::vector<ChartLane>& lanes, const ChannelResidualCache& channel,
+                const SharedLearning& shared, std::size_t from, std::size_t to) {
+  for (std::size_t first = 0; first < lanes.size(); first += kInterleavedLanes) {
+    const std::size_t last = std::min(lanes.size(), first + kInterleavedLanes);
     for (std::size_t i = from; i < to; ++i) {
-      if (!lane.departed) {
-        const bool own_open =
-            Trusts(lane.alarm, lane.held_out, flags[i]) && (gate[i] & kWithinSigmas) != 0;
-        if (own_open != ((gate[i] & kBaseGateOpen) != 0)) {
-          lane.departed = true;
-          lane.result.own_gate_departs = times[i];
-        }
-      }
-      const double ratio = lane.charts.Add(cusum_input[i], ewma_input[i], abs_z[i]);
-      // Update only when it can change something: inactive with nothing pending and a
-      // ratio below 1 (or NaN) it would only note the time (the cache's times increase).
-      if (!lane.quiet || ratio >= 1.0) {
-        const core::AlarmEdge edge = lane.alarm.Update(times[i], ratio);
-        if (edge == core::AlarmEdge::kRaise) {
-          lane.result.raises.push_back(times[i]);
-        } else if (edge == core::AlarmEdge::kClear) {
-          lane.charts.Reset();
-        }
-        lane.quiet = !lane.alarm.active() && !lane.alarm.condition_since().has_value();
-      }
-      if (!lane.departed) {
-        Bookkeep(true, lane.alarm.active(), abs_z[i], lane.held_out, lane.closed_loop_steps);
-      }
+      for (std::size_t l = first; l < last; ++l) ChartStep(lanes[l], channel, shared, i);
     }
   }
 }

@@ -11,6 +11,8 @@
 //   ratio_sweep, the whole 108-setting sweep.
 // BM_SweepLearningPass: the shared part alone (EvaluateSettings with the base setting
 //   only): ratio_to_replay.
+// BM_SweepDesigns: the threshold designs of the grid (36 distinct, cached after that) that
+//   BM_SweepOneSetting includes: ratio_to_replay.
 // BM_SweepOwnGateSetting: one setting re-run with a monitor of its own learning along its
 //   own gate (EvaluateSettingOwnGate, the sweep's reference and its former way), for
 //   every channel: ratio_to_replay, and ratio_to_shared, its cost over one setting of
@@ -144,6 +146,32 @@ void BM_SweepLearningPass(benchmark::State& state) {
   state.counters["ratio_to_replay"] = pass / day.replay_cpu_s;
 }
 BENCHMARK(BM_SweepLearningPass)->Unit(benchmark::kSecond)->Iterations(3);
+
+void BM_SweepDesigns(benchmark::State& state) {
+  const CachedDay& day = Cached();
+  if (day.cache.channels.empty()) {
+    state.SkipWithError("demo day could not be replayed");
+    return;
+  }
+  const std::vector<nightjar::replay::SweepSetting> grid = nightjar::replay::DefaultSweepGrid();
+  double cpu = 0.0;
+  for (auto _ : state) {
+    const double start = CpuSeconds();
+    nightjar::core::ThresholdDesigner designer;
+    for (const nightjar::replay::ChannelResidualCache& channel : day.cache.channels) {
+      for (const nightjar::replay::SweepSetting& setting : grid) {
+        auto designed =
+            designer.Design(nightjar::replay::WithSetting(channel.options, setting).thresholds,
+                            channel.armed_period_s);
+        benchmark::DoNotOptimize(designed.ok());
+      }
+    }
+    cpu += CpuSeconds() - start;
+  }
+  state.counters["ratio_to_replay"] =
+      cpu / static_cast<double>(state.iterations()) / day.replay_cpu_s;
+}
+BENCHMARK(BM_SweepDesigns)->Unit(benchmark::kSecond)->Iterations(3);
 
 void BM_SweepOwnGateSetting(benchmark::State& state) {
   const CachedDay& day = Cached();
