@@ -103,8 +103,8 @@ bool MoreSensitive(const SweepSetting& a, std::size_t a_index, const SweepSettin
 
 namespace {
 
-// Settings whose charts advance together over one block of samples: the block's shared
-// inputs (5 doubles a sample) stay in L1/L2 while every lane reads them.
+// Samples per block: a task's lanes all run over one block before the next, so the block's
+// shared inputs (5 doubles a sample) stay in L2 while every lane reads them.
 constexpr std::size_t kBlockSamples = 2048;
 
 // One setting followed with its own learning gate, as ChannelPipeline::Process does from
@@ -546,7 +546,7 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
     mine.raises.resize(mine.settings.size());
   }
 
-  // Two passes over the threads. First, per channel, the learning every setting shares
+  // Two passes over the threads: first, per channel, the learning every setting shares
   // (the base setting's gate, the scale and inflation trajectory per lambda); then chunks
   // of one channel's settings re-run only their charts and alarms on it.
   const int jobs = std::max(1, options.jobs);
@@ -566,40 +566,45 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
     }
     for (std::thread& thread : threads) thread.join();
   };
-  std::vector<std::vector<std::optional<core::ChannelOptions>>> valid(channel_count);
-  std::vector<SharedLearning> learned(channel_count);
-  parallel(channel_count, [&](std::size_t c, core::ThresholdDesigner& designer) {
-    valid[c] = ValidOptions(cache.channels[c], candidates[c].settings);
-    learned[c] = Learn(cache.channels[c], valid[c], designer);
-  });
-
+  // The learning of `jobs` channels at a time is held (a few MB per channel-day), then
+  // their settings' charts run and it is dropped.
   struct Task {
     std::size_t channel;
     std::size_t first;
     std::size_t count;
   };
-  std::vector<Task> tasks;
   std::int64_t evaluations = 0;
-  for (std::size_t c = 0; c < channel_count; ++c) {
-    const std::size_t total = candidates[c].settings.size();
-    evaluations += static_cast<std::int64_t>(total);
-    for (std::size_t first = 0; first < total; first += kLanesPerTask) {
-      tasks.push_back({c, first, std::min(kLanesPerTask, total - first)});
+  const std::size_t window = static_cast<std::size_t>(jobs);
+  for (std::size_t begin = 0; begin < channel_count; begin += window) {
+    const std::size_t end = std::min(channel_count, begin + window);
+    std::vector<std::vector<std::optional<core::ChannelOptions>>> valid(end - begin);
+    std::vector<SharedLearning> learned(end - begin);
+    parallel(end - begin, [&](std::size_t w, core::ThresholdDesigner& designer) {
+      valid[w] = ValidOptions(cache.channels[begin + w], candidates[begin + w].settings);
+      learned[w] = Learn(cache.channels[begin + w], valid[w], designer);
+    });
+    std::vector<Task> tasks;
+    for (std::size_t w = 0; w < end - begin; ++w) {
+      const std::size_t total = candidates[begin + w].settings.size();
+      evaluations += static_cast<std::int64_t>(total);
+      for (std::size_t first = 0; first < total; first += kLanesPerTask) {
+        tasks.push_back({w, first, std::min(kLanesPerTask, total - first)});
+      }
     }
+    parallel(tasks.size(), [&](std::size_t t, core::ThresholdDesigner& designer) {
+      const Task task = tasks[t];
+      Candidates& mine = candidates[begin + task.channel];
+      std::vector<core::Result<SettingRaises>> raised =
+          RunCharts(cache.channels[begin + task.channel], learned[task.channel],
+                    std::span<const SweepSetting>(mine.settings).subspan(task.first, task.count),
+                    std::span<const std::optional<core::ChannelOptions>>(valid[task.channel])
+                        .subspan(task.first, task.count),
+                    designer);
+      for (std::size_t s = 0; s < task.count; ++s) {
+        if (raised[s].ok()) mine.raises[task.first + s] = std::move(raised[s]->raises);
+      }
+    });
   }
-  parallel(tasks.size(), [&](std::size_t t, core::ThresholdDesigner& designer) {
-    const Task task = tasks[t];
-    Candidates& mine = candidates[task.channel];
-    std::vector<core::Result<SettingRaises>> raised =
-        RunCharts(cache.channels[task.channel], learned[task.channel],
-                  std::span<const SweepSetting>(mine.settings).subspan(task.first, task.count),
-                  std::span<const std::optional<core::ChannelOptions>>(valid[task.channel])
-                      .subspan(task.first, task.count),
-                  designer);
-    for (std::size_t s = 0; s < task.count; ++s) {
-      if (raised[s].ok()) mine.raises[task.first + s] = std::move(raised[s]->raises);
-    }
-  });
 
   SweepResult result;
   result.labelled = options.labels.has_value();

@@ -52,6 +52,10 @@
 // setting that learns along its own gate. `nightjar tune --jobs 1` costs about 1.1
 // replays of the same day (whole process, CPU).
 //
+// Memory: the learning pass keeps 8 * (2 + lambdas) + 1 bytes per cached sample of the
+// channel (about 3.5 MB for a day at 1 Hz and 3 lambdas); RunSweep holds that for `jobs`
+// channels at a time.
+//
 // Thread-safety: RunSweep uses its arguments only and runs jobs threads of its own, each
 // with its own ThresholdDesigner; the cache is only read. Ownership: plain values.
 #pragma once
