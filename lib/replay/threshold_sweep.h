@@ -47,10 +47,10 @@
 //
 // Cost. Measured on the demo day, one core, as fractions of the replay that built the
 // cache (tests/bench/sweep_bench.cc; a shared, loaded machine): the whole 108-setting
-// sweep about 0.13, of which the threshold designs (36 distinct) about 0.04 and the
-// learning pass about 0.02; one setting's charts about 0.0006, against about 0.009 for a
-// setting that learns along its own gate. `nightjar tune --jobs 1` costs about 1.1
-// replays of the same day (whole process, CPU).
+// sweep 0.13 to 0.16 over runs, of which the threshold designs (36 distinct) about 0.045
+// and the learning pass (base setting, one lambda) about 0.02; one setting's charts under
+// 0.001, against about 0.008 for a setting that learns along its own gate. `nightjar
+// tune --jobs 1` costs about 1.1 replays of the same day (whole process, CPU).
 //
 // Memory: the learning pass keeps 8 * (2 + lambdas) + 1 bytes per cached sample of the
 // channel (about 3.5 MB for a day at 1 Hz and 3 lambdas); RunSweep holds that for `jobs`
