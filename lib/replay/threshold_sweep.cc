@@ -259,6 +259,28 @@ std::vector<core::Result<std::vector<core::TimestampUs>>> EvaluateSettings(
     group.shared = false;
   };
 
+  // A channel armed from a checkpoint: the cache cannot hold the loaded monitor (its scale
+  // and inflation estimates), so each group learns them in one unarmed pass over the
+  // cached samples (trusting every sample that is not flat; the spike tail from the second
+  // half, as in the engine's warm-up) and is armed before the first sample.
+  if (channel.armed_at_start) {
+    const std::size_t samples = channel.times.size();
+    for (Group& group : groups) {
+      for (std::size_t i = 0; i < samples; ++i) {
+        if (i == samples / 2) group.monitor.StartTailWindow();
+        group.monitor.Observe(channel.residuals[i], (channel.flags[i] & kCachedFlatline) == 0);
+      }
+      core::Result<core::Thresholds> thresholds =
+          designer.Design(lanes[group.members.front()].options.thresholds, channel.armed_period_s);
+      if (thresholds.ok()) {
+        group.monitor.Arm(*thresholds);
+        group.monitor.ResetCharts();
+      } else {
+        for (const std::size_t l : group.members) lanes[l].status = thresholds.status();
+      }
+    }
+  }
+
   // All lanes advance together, sample by sample: their chains of dependent divisions
   // and square roots are independent, so the CPU overlaps them.
   const std::size_t n = channel.times.size();
@@ -404,9 +426,10 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
   if (result.labelled) {
     const std::vector<LabelWindow>& windows = *options.labels;
     // Overall F1 with channel `c` at setting `s` and every other at its present choice.
+    // Anomaly raises only, as replay scores detection (sensor alarms are data quality).
     std::vector<Raise> pooled;
     const auto overall_f1 = [&](std::size_t c, std::size_t s) {
-      pooled = cache.fixed_raises;
+      pooled.clear();
       for (std::size_t o = 0; o < channel_count; ++o) {
         const std::size_t pick = o == c ? s : chosen[o];
         for (const core::TimestampUs t : *candidates[o].raises[pick]) {
