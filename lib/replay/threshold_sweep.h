@@ -26,6 +26,14 @@
 // during and right after alarm episodes (the model learns nothing while in alarm either
 // way; it only resumes learning a little earlier or later).
 //
+// Channels armed from a checkpoint (ChannelResidualCache::armed_at_start, `tune
+// --state-in`). The loaded residual scale and inflation estimates are not in the cache, so
+// each candidate first learns them in one unarmed pass over the channel's cached samples,
+// is armed with its own thresholds (designed at the loaded sample period) and then re-runs
+// from the first sample as above. This is a second approximation, also for the configured
+// setting: the scale is the recording's own rather than the checkpoint's, so tune on a
+// recording that is normal throughout (an anomaly-free run) when using --state-in.
+//
 // Cost. Settings re-run in lockstep over the samples (EvaluateSettings), and settings that
 // differ only in the on-delay share one ResidualMonitor until their alarms first disagree
 // (then each continues with a copy), both exact. Measured on the demo day, one core: the
