@@ -43,9 +43,12 @@ core::Result<ResidualCache> BuildResidualCache(const std::string& path,
   tapped.residual_tap = &recorder;
   // Channels armed before the first row: loaded from a checkpoint.
   std::vector<std::pair<bool, double>> armed_at_start;
-  tapped.on_engine_ready = [&armed_at_start, &options](core::Engine& engine) {
+  tapped.on_engine_ready = [&armed_at_start, &options, &recorder](core::Engine& engine) {
     if (options.on_engine_ready) {
       if (core::Status ready = options.on_engine_ready(engine); !ready.ok()) return ready;
+      // Engine::LoadChannel replaces a channel's pipeline and the new one has no tap: set
+      // it again for every channel.
+      engine.set_residual_tap(&recorder);
     }
     armed_at_start.resize(engine.channel_count());
     for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {

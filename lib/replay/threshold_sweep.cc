@@ -261,20 +261,27 @@ std::vector<core::Result<std::vector<core::TimestampUs>>> EvaluateSettings(
 
   // A channel armed from a checkpoint: the cache cannot hold the loaded monitor (its scale
   // and inflation estimates), so each group learns them in one unarmed pass over the
-  // cached samples (trusting every sample that is not flat; the spike tail from the second
-  // half, as in the engine's warm-up) and is armed before the first sample.
+  // cached samples, through the pipeline's learning gate (not flat, and within
+  // kLearnGateSigmas once the scale is settled, so a fault in the recording is not learnt;
+  // the spike tail from the second half, as in the engine's warm-up), and is armed before
+  // the first sample.
   if (channel.armed_at_start) {
     const std::size_t samples = channel.times.size();
     for (Group& group : groups) {
+      core::ResidualMonitor& monitor = group.monitor;
       for (std::size_t i = 0; i < samples; ++i) {
-        if (i == samples / 2) group.monitor.StartTailWindow();
-        group.monitor.Observe(channel.residuals[i], (channel.flags[i] & kCachedFlatline) == 0);
+        if (i == samples / 2) monitor.StartTailWindow();
+        const double residual = channel.residuals[i];
+        const bool learn =
+            (channel.flags[i] & kCachedFlatline) == 0 &&
+            (!monitor.scale_settled() || std::abs(residual / monitor.sigma()) < kLearnGateSigmas);
+        monitor.Observe(residual, learn);
       }
       core::Result<core::Thresholds> thresholds =
           designer.Design(lanes[group.members.front()].options.thresholds, channel.armed_period_s);
       if (thresholds.ok()) {
-        group.monitor.Arm(*thresholds);
-        group.monitor.ResetCharts();
+        monitor.Arm(*thresholds);
+        monitor.ResetCharts();
       } else {
         for (const std::size_t l : group.members) lanes[l].status = thresholds.status();
       }

@@ -28,7 +28,9 @@
 //
 // Channels armed from a checkpoint (ChannelResidualCache::armed_at_start, `tune
 // --state-in`). The loaded residual scale and inflation estimates are not in the cache, so
-// each candidate first learns them in one unarmed pass over the channel's cached samples,
+// each candidate first learns them in one unarmed pass over the channel's cached samples
+// (through the pipeline's learning gate: flat samples and, once the scale is settled,
+// residuals beyond 6 sigma are not learnt),
 // is armed with its own thresholds (designed at the loaded sample period) and then re-runs
 // from the first sample as above. This is a second approximation, also for the configured
 // setting: the scale is the recording's own rather than the checkpoint's, so tune on a
