@@ -2,12 +2,15 @@
 // so the channels start armed next time (`nightjar replay --state-in`, later `run`).
 //
 //   nightjar learn --input GOOD.csv[.gz] --state-out DIR [--config FILE] [--seed N]
-//                  [--skip-bad-rows] [--alerts FILE]
+//                  [--skip-bad-rows] [--alerts FILE] [--state-in DIR]
 //
 // Replays the recording through the engine (lib/replay RunReplay) and writes one
 // checkpoint per channel into DIR (lib/state, format in lib/state/FORMAT.md). Alerts
 // raised while learning are counted and summarised, and written as JSON lines only to
-// --alerts FILE. Prints per channel whether it ended armed or still learning.
+// --alerts FILE. Prints per channel whether it ended armed or still learning. With
+// --state-in, channels whose checkpoint is in DIR go on learning from it (several
+// known-good recordings learnt one after the other), as `nightjar replay --state-in`
+// loads it.
 //
 // Exit codes: 0 the state was written, also when some channels are still learning (the
 // recording was too short for them: a warning per channel says so, and they go on
@@ -29,6 +32,7 @@
 #include "core/channel_pipeline.h"
 #include "replay/replay_runner.h"
 #include "state/state_directory.h"
+#include "state_in.h"
 
 namespace nightjar::daemon {
 namespace {
@@ -38,6 +42,7 @@ struct LearnFlags {
   std::string state_out;
   std::string config;
   std::string alerts;
+  std::string state_in;
   bool skip_bad_rows = false;
   std::uint64_t seed = 0;
   CLI::Option* seed_option = nullptr;
@@ -63,6 +68,7 @@ int RunLearnCommand(const LearnFlags& flags) {
   if (flags.seed_option != nullptr && flags.seed_option->count() > 0) {
     options.engine.seed = flags.seed;
   }
+  if (!flags.state_in.empty()) options.on_engine_ready = LoadStateHook("learn", flags.state_in);
   const std::string state_out = flags.state_out;
   options.on_engine_done = [&state_out](const core::Engine& engine) {
     return state::SaveEngineState(engine, state_out);
@@ -135,6 +141,8 @@ Command AddLearnCommand(CLI::App& app) {
                 "Count and skip malformed or out-of-order rows instead of stopping at the first");
   sub->add_option("--alerts", flags->alerts,
                   "Also write the alerts raised while learning to this file (JSON lines)");
+  sub->add_option("--state-in", flags->state_in,
+                  "State folder to go on learning from (from an earlier nightjar learn)");
   return Command{sub, [flags] { return RunLearnCommand(*flags); }};
 }
 

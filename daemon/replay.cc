@@ -11,7 +11,8 @@
 // its own thread (--jobs, default the number of recordings, at most the number of hardware
 // threads). Prints a summary per recording: alerts per channel and kind, the alarm rate against
 // operator-load guidance, the worst 10-minute window and floods, and, with labels, which labelled
-// windows got a raise and one score row each for nightjar, "next = last" and static limits. A
+// windows got a raise and one score row each for nightjar, "next = last", static limits and a
+// windowed gaussian (event-wise and point-wise; anomaly alarms only, sensor alarms apart). A
 // labels file <name>.labels.csv beside a recording is used unless --labels names others (one per
 // --input, in order) or --no-labels is given.
 //
@@ -48,7 +49,7 @@
 #include "replay/recording_reader.h"
 #include "replay/replay_runner.h"
 #include "replay/replay_summary.h"
-#include "state/state_directory.h"
+#include "state_in.h"
 
 namespace nightjar::daemon {
 namespace {
@@ -173,34 +174,7 @@ int RunReplayCommand(const ReplayFlags& flags) {
     options.engine.seed = flags.seed;
   }
 
-  if (!flags.state_in.empty()) {
-    const std::string state_in = flags.state_in;
-    // Runs on the job threads: one fprintf per line keeps lines whole.
-    options.on_engine_ready = [state_in](core::Engine& engine) {
-      const state::LoadReport report = state::LoadEngineState(engine, state_in);
-      for (const state::LoadEntry& entry : report.entries) {
-        if (entry.outcome == state::LoadOutcome::kUnreadable && entry.file == state_in) {
-          return core::Status::NotFound("--state-in " + entry.message);
-        }
-      }
-      std::size_t fresh = 0;
-      for (const state::LoadEntry& entry : report.entries) {
-        if (entry.outcome == state::LoadOutcome::kLoaded) continue;
-        if (entry.outcome == state::LoadOutcome::kMissing) {
-          ++fresh;
-          continue;
-        }
-        std::fprintf(stderr, "nightjar replay: state: %s; the channel starts fresh\n",
-                     entry.message.c_str());
-      }
-      std::fprintf(stderr,
-                   "nightjar replay: state: %zu channel%s loaded from %s, %zu with no file, "
-                   "%zu refused\n",
-                   report.loaded(), report.loaded() == 1 ? "" : "s", state_in.c_str(), fresh,
-                   report.problems());
-      return core::Status::Ok();
-    };
-  }
+  if (!flags.state_in.empty()) options.on_engine_ready = LoadStateHook("replay", flags.state_in);
 
   const std::vector<std::string> dirs = replay::OutputDirsFor(flags.inputs, flags.out_dir);
   std::vector<replay::ReplayJob> jobs;

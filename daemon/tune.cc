@@ -3,14 +3,19 @@
 //
 //   nightjar tune --input DAY.csv[.gz] --out tuned.yaml [--labels FILE | --no-labels]
 //                 [--config FILE] [--max-alarms-per-day N] [--jobs N] [--seed N]
-//                 [--skip-bad-rows]
+//                 [--skip-bad-rows] [--state-in DIR]
 //
 // With labels (--labels, or <name>.labels.csv beside the recording) each channel gets the
 // setting that maximises the overall event F1; without, the most sensitive setting whose
 // anomaly raise rate stays within its share of --max-alarms-per-day. The rules, the grid
 // and the approximation are in lib/replay/threshold_sweep.h and replay_data/FORMAT.md
 // ("Tuning"). tuned.yaml is the --config file (if any) plus one block per channel; it is
-// checked by loading it before it is written.
+// checked by loading it before it is written. With --state-in, channels whose checkpoint
+// is in DIR (from `nightjar learn`) start from it, as in `nightjar replay --state-in`, so
+// the residuals tuned on are those of a learnt model (threshold_sweep.h says how a
+// channel armed from the start is re-run). The tuned thresholds are part of a
+// checkpoint's options fingerprint: learn again with the tuned config before using it
+// with a state folder.
 // Exit codes: 0 written, 1 input, config or output problem (the message names file, line
 // and key where there is one), 2 usage errors.
 #include <CLI/CLI.hpp>
@@ -34,6 +39,7 @@
 #include "replay/residual_cache.h"
 #include "replay/threshold_sweep.h"
 #include "replay/tuned_config_writer.h"
+#include "state_in.h"
 
 namespace nightjar::daemon {
 namespace {
@@ -48,6 +54,7 @@ struct TuneFlags {
   int jobs = 0;
   std::uint64_t seed = 0;
   bool skip_bad_rows = false;
+  std::string state_in;
   CLI::Option* seed_option = nullptr;
 };
 
@@ -94,6 +101,8 @@ int RunTuneCommand(const TuneFlags& flags) {
   if (flags.seed_option != nullptr && flags.seed_option->count() > 0) {
     options.engine.seed = flags.seed;
   }
+
+  if (!flags.state_in.empty()) options.on_engine_ready = LoadStateHook("tune", flags.state_in);
 
   replay::SweepOptions sweep;
   sweep.max_alarms_per_day = flags.max_alarms_per_day;
@@ -174,6 +183,8 @@ Command AddTuneCommand(CLI::App& app) {
       sub->add_option("--seed", flags->seed, "Engine seed (default: the config's, else 1)");
   sub->add_flag("--skip-bad-rows", flags->skip_bad_rows,
                 "Count and skip malformed or out-of-order rows instead of stopping at the first");
+  sub->add_option("--state-in", flags->state_in,
+                  "State folder (from nightjar learn): channels found there start armed");
   return Command{sub, [flags] { return RunTuneCommand(*flags); }};
 }
 

@@ -2,9 +2,20 @@
 
 #include <utility>
 
+#include "replay/pointwise_scoring.h"
 #include "replay/static_limits_baseline.h"
+#include "replay/windowed_gaussian_baseline.h"
 
 namespace nightjar::replay {
+namespace {
+
+// Feeds a baseline's new edges (from `from` on) to its point scorer.
+void FeedEdges(const std::vector<BaselineEdge>& edges, std::size_t from,
+               SeriesPointScorer& points) {
+  for (std::size_t i = from; i < edges.size(); ++i) points.Edge(edges[i].channel, edges[i].phase);
+}
+
+}  // namespace
 
 BaselineOutcome ScoreBaselines(const std::string& path, const ReplayOptions& options,
                                std::span<const LabelWindow> windows,
@@ -21,28 +32,54 @@ BaselineOutcome ScoreBaselines(const std::string& path, const ReplayOptions& opt
   }
 
   StaticLimitsBaseline limits(options.engine.defaults);
+  WindowedGaussianBaseline gaussian(options.engine.defaults);
+  SeriesPointScorer last_value_points(windows, scoring);
+  SeriesPointScorer limits_points(windows, scoring);
+  SeriesPointScorer gaussian_points(windows, scoring);
   std::vector<Raise> last_value_raises;
-  std::vector<BaselineEdge> edges;
+  std::vector<BaselineEdge> limits_edges;
+  std::vector<BaselineEdge> gaussian_edges;
   ReplayCallbacks callbacks;
-  callbacks.on_alert = [&last_value_raises](const core::Alert& alert) {
-    if (alert.phase == core::AlertPhase::kRaise && alert.kind != core::AlertKind::kEvent) {
+  callbacks.on_row = [&](core::TimestampUs time) {
+    last_value_points.Row(time);
+    limits_points.Row(time);
+    gaussian_points.Row(time);
+  };
+  callbacks.on_alert = [&](const core::Alert& alert) {
+    if (alert.kind != core::AlertKind::kAnomaly) return core::Status::Ok();
+    last_value_points.Edge(alert.channel, alert.phase);
+    if (alert.phase == core::AlertPhase::kRaise) {
       last_value_raises.push_back(Raise{alert.time, alert.channel});
     }
     return core::Status::Ok();
   };
-  callbacks.on_sample = [&limits, &edges](const TracePoint& point) {
-    limits.Process(point.channel_name, point.time, point.value, edges);
+  callbacks.on_sample = [&](const TracePoint& point) {
+    const std::size_t limits_from = limits_edges.size();
+    limits.Process(point.channel_name, point.time, point.value, limits_edges);
+    FeedEdges(limits_edges, limits_from, limits_points);
+    const std::size_t gaussian_from = gaussian_edges.size();
+    gaussian.Process(point.channel_name, point.time, point.value, gaussian_edges);
+    FeedEdges(gaussian_edges, gaussian_from, gaussian_points);
   };
   ReplayOutcome pass = RunReplay(path, last_value, callbacks);
+  last_value_points.Finish();
+  limits_points.Finish();
+  gaussian_points.Finish();
 
   BaselineOutcome outcome;
   outcome.status = std::move(pass.status);
   outcome.rows.push_back(DetectorScores{
       std::string(kLastValueRowName),
-      ScoreEventsByChannel(last_value_raises, windows, channels, duration_s, scoring)});
+      ScoreEventsByChannel(last_value_raises, windows, channels, duration_s, scoring),
+      last_value_points.scores()});
   outcome.rows.push_back(DetectorScores{
       limits.name(),
-      ScoreEventsByChannel(RaisesOf(edges), windows, channels, duration_s, scoring)});
+      ScoreEventsByChannel(RaisesOf(limits_edges), windows, channels, duration_s, scoring),
+      limits_points.scores()});
+  outcome.rows.push_back(DetectorScores{
+      gaussian.name(),
+      ScoreEventsByChannel(RaisesOf(gaussian_edges), windows, channels, duration_s, scoring),
+      gaussian_points.scores()});
   return outcome;
 }
 

@@ -18,6 +18,7 @@
 #include "core/alert_json.h"
 #include "replay/baseline_scores.h"
 #include "replay/labels.h"
+#include "replay/pointwise_scoring.h"
 #include "replay/report_html.h"
 #include "replay/report_trace.h"
 
@@ -187,6 +188,7 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
     }
     if (!*got) break;
     last_line = row.line;
+    if (callbacks.on_row) callbacks.on_row(row.time);
     if (!summary.first_time) summary.first_time = row.time;
     summary.last_time = row.time;
     if (!clock_started || row.time >= clock + kClockStep) {
@@ -293,9 +295,14 @@ ReplayReport ReplayToDirectory(const ReplayJob& job, const ReplayOptions& option
   // The page's traces, bucketed as they come (bounded memory), and nightjar's alerts.
   ReportTrace trace;
   std::vector<core::Alert> page_alerts;
+  // nightjar's point-wise counts: its anomaly alarms only (FORMAT.md "Scoring").
+  SeriesPointScorer points(labels ? std::span<const LabelWindow>(*labels)
+                                  : std::span<const LabelWindow>());
   ReplayCallbacks callbacks;
   callbacks.on_sample = [&trace](const TracePoint& point) { trace.Add(point); };
-  callbacks.on_alert = [&alerts_file, &page_alerts](const core::Alert& alert) {
+  callbacks.on_row = [&points](core::TimestampUs time) { points.Row(time); };
+  callbacks.on_alert = [&alerts_file, &page_alerts, &points](const core::Alert& alert) {
+    if (alert.kind == core::AlertKind::kAnomaly) points.Edge(alert.channel, alert.phase);
     page_alerts.push_back(alert);
     std::string& buffer = alerts_file.buffer();
     core::AppendAlertJson(alert, &buffer);
@@ -316,6 +323,8 @@ ReplayReport ReplayToDirectory(const ReplayJob& job, const ReplayOptions& option
   for (const ChannelSummary& channel : report.summary.channels) names.push_back(channel.name);
   if (labels) {
     report.scores = ScoreAgainstLabels(report.summary, *labels, job.labels);
+    points.Finish();
+    report.scores->detectors.front().points = points.scores();
     // Only a full nightjar pass is worth setting baselines against.
     if (report.status.ok()) {
       const auto wall_start = std::chrono::steady_clock::now();
@@ -339,7 +348,7 @@ ReplayReport ReplayToDirectory(const ReplayJob& job, const ReplayOptions& option
   if (report.scores) {
     page.scoring = report.scores->options;
     for (const DetectorScores& row : report.scores->detectors) {
-      page.scores.push_back(ReportScoreRow{row.detector, row.table, std::nullopt});
+      page.scores.push_back(ReportScoreRow{row.detector, row.table, row.points});
     }
   }
   if (core::Status written = WriteWholeFile(report_path, RenderReport(page));

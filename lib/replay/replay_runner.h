@@ -11,10 +11,10 @@
 // ReplayToDirectory adds the files `nightjar replay` writes: <dir>/alerts.jsonl (one
 // core/alert_json.h object per line, raises and clears in time order),
 // <dir>/summary.json (ReportToJson) and <dir>/report.html (report_html.h, fed by the
-// bucketed sample trace, report_trace.h). With labels it also scores two baselines
-// (baseline_scores.h: "next = last" and static limits) in one extra cheap pass on the
-// same thread. RunReplayJobs runs several such jobs on a few threads, one Engine per
-// recording.
+// bucketed sample trace, report_trace.h). With labels it also scores three baselines
+// (baseline_scores.h: "next = last", static limits and windowed gaussian) in one extra
+// cheap pass on the same thread, and every row point-wise (pointwise_scoring.h). RunReplayJobs runs
+// several such jobs on a few threads, one Engine per recording.
 //
 // Thread-safety: RunReplay and ReplayToDirectory use only their arguments and may run on
 // several threads at once; each call owns its reader and engine. Callbacks run on the
@@ -86,6 +86,9 @@ struct ReplayProgress {
 inline constexpr std::int64_t kProgressEveryRows = 4096;
 
 struct ReplayCallbacks {
+  // Each row the reader delivers, with its time, before any of its cells is processed
+  // (so the alerts a row causes come after its on_row; point-wise scoring relies on it).
+  std::function<void(core::TimestampUs)> on_row;
   // Each alert, in time order. A non-OK status stops the replay and is returned.
   std::function<core::Status(const core::Alert&)> on_alert;
   // Each sample after the engine processed it. Costs a status copy per sample.

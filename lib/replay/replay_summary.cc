@@ -165,6 +165,19 @@ void WriteAlertCounts(JsonWriter& json, const AlertCounts& counts) {
   json.EndObject();
 }
 
+void WritePointScores(JsonWriter& json, const PointScores& points) {
+  json.BeginObject();
+  json.Field("points", points.samples);
+  json.Field("excluded", points.excluded);
+  json.Field("positives", points.positives);
+  json.Field("flagged", points.flagged);
+  json.Field("true_positives", points.true_positives);
+  json.Field("precision", points.precision());
+  json.Field("recall", points.recall());
+  json.Field("f1", points.f1());
+  json.EndObject();
+}
+
 void WriteEventScores(JsonWriter& json, const EventScores& scores) {
   json.BeginObject();
   json.Field("anomaly_windows", scores.windows);
@@ -356,17 +369,24 @@ LabelScores ScoreAgainstLabels(const ReplaySummary& summary, std::span<const Lab
   scores.options = options;
   scores.duration_s = summary.duration_s();
   scores.windows = static_cast<std::int64_t>(windows.size());
+  // Detection is the anomaly alarms' job; sensor alarms are data quality (FORMAT.md
+  // "Scoring", "Which alarms are scored"); event notices are not alarms at all.
   std::vector<Raise> raises;
+  std::vector<Raise> sensor_raises;
   raises.reserve(summary.raises.size());
   for (const RaiseRecord& raise : summary.raises) {
-    if (raise.kind == core::AlertKind::kEvent) continue;  // a notice, not an alarm
-    raises.push_back(Raise{raise.time, summary.channels[raise.channel].name});
+    if (raise.kind == core::AlertKind::kAnomaly) {
+      raises.push_back(Raise{raise.time, summary.channels[raise.channel].name});
+    } else if (raise.kind == core::AlertKind::kSensor) {
+      sensor_raises.push_back(Raise{raise.time, summary.channels[raise.channel].name});
+    }
   }
   std::vector<std::string> names;
   names.reserve(summary.channels.size());
   for (const ChannelSummary& channel : summary.channels) names.push_back(channel.name);
   scores.table = ScoreEventsByChannel(raises, windows, names, scores.duration_s, options);
-  scores.detectors.push_back(DetectorScores{"nightjar", scores.table});
+  scores.sensor_alarms = ScoreEvents(sensor_raises, windows, scores.duration_s, options);
+  scores.detectors.push_back(DetectorScores{"nightjar", scores.table, std::nullopt});
   return scores;
 }
 
@@ -477,9 +497,17 @@ std::string ReportToJson(const ReplayReport& report) {
       json.Field("detector", row.detector);
       json.Key("overall");
       WriteEventScores(json, row.table.overall);
+      json.Key("points");
+      if (row.points) {
+        WritePointScores(json, *row.points);
+      } else {
+        json.Null();
+      }
       json.EndObject();
     }
     json.EndArray();
+    json.Key("sensor_alarms");
+    WriteEventScores(json, scores.sensor_alarms);
     json.EndObject();
   } else {
     json.Null();
@@ -608,7 +636,7 @@ std::string FormatReportText(const ReplayReport& report) {
     const LabelScores& scores = *report.scores;
     const EventScores& all = scores.table.overall;
     out += Printf("\nlabels %s (%" PRId64 " windows, grace %.0f s): %" PRId64 " of %" PRId64
-                  " anomaly windows detected\n",
+                  " anomaly windows detected by anomaly alarms\n",
                   scores.path.c_str(), scores.windows, scores.options.grace_s, all.detected,
                   all.windows);
     for (const WindowOutcome& outcome : all.outcomes) {
@@ -636,21 +664,33 @@ std::string FormatReportText(const ReplayReport& report) {
                     w, channel.channel.c_str(), c.true_raises, c.expected_raises, c.false_alarms,
                     c.detected, c.windows, Number(c.recall, "%.2f").c_str());
     }
+    const EventScores& sensor = scores.sensor_alarms;
+    out += Printf("  sensor alarms (data quality, not scored as detection): %" PRId64
+                  " raises, %" PRId64 " in anomaly windows, %" PRId64 " of %" PRId64
+                  " windows had one\n",
+                  sensor.raises, sensor.true_raises, sensor.detected, sensor.windows);
     if (!scores.detectors.empty()) {
-      out += Printf("\n  %-12s  %9s  %6s  %5s  %10s  %15s\n", "detector", "precision", "recall",
-                    "F1", "mean delay", "false alarms/d");
+      out +=
+          Printf("\n  %-17s  %9s  %6s  %5s  %10s  %15s  %8s  %8s  %8s\n", "detector", "precision",
+                 "recall", "F1", "mean delay", "false alarms/d", "point P", "point R", "point F1");
       for (const DetectorScores& detector_row : scores.detectors) {
         const EventScores& r = detector_row.table.overall;
         // printf pads by bytes; pad the UTF-8 name by code points instead.
         std::string name = detector_row.detector;
         std::size_t points = 0;
         for (const char ch : name) points += (static_cast<unsigned char>(ch) & 0xC0) != 0x80;
-        if (points < 12) name.append(12 - points, ' ');
+        if (points < 17) name.append(17 - points, ' ');
+        const std::optional<PointScores>& p = detector_row.points;
+        const auto point = [&p](double value) {
+          return p ? Number(value, "%.2f") : std::string("-");
+        };
         out += Printf(
-            "  %s  %9s  %6s  %5s  %10s  %15s\n", name.c_str(), Number(r.precision, "%.2f").c_str(),
-            Number(r.recall, "%.2f").c_str(), Number(r.f1, "%.2f").c_str(),
+            "  %s  %9s  %6s  %5s  %10s  %15s  %8s  %8s  %8s\n", name.c_str(),
+            Number(r.precision, "%.2f").c_str(), Number(r.recall, "%.2f").c_str(),
+            Number(r.f1, "%.2f").c_str(),
             (std::isfinite(r.mean_delay_s) ? Delay(r.mean_delay_s) : std::string("-")).c_str(),
-            Number(r.false_alarms_per_day, "%.2f").c_str());
+            Number(r.false_alarms_per_day, "%.2f").c_str(), point(p ? p->precision() : 0.0).c_str(),
+            point(p ? p->recall() : 0.0).c_str(), point(p ? p->f1() : 0.0).c_str());
       }
       if (report.baselines_wall_s > 0.0) {
         out += Printf("  (baselines replayed in %.2f s, %.2f s CPU)\n", report.baselines_wall_s,

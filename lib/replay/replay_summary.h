@@ -4,9 +4,11 @@
 // recording, every raise in time order, and timing. The functions here turn it into:
 //  * AlarmRate: raises per hour set against the operator-load guidance below, the worst
 //    10-minute window, and alarm floods;
-//  * LabelScores: the raises scored against a labels file (labels.h) by the project's
-//    scoring rule (event_scoring.h): detected windows and delays, precision, recall,
-//    false alarms per day, per channel and overall;
+//  * LabelScores: the anomaly alarm raises scored against a labels file (labels.h) by
+//    the project's scoring rule (event_scoring.h): detected windows and delays,
+//    precision, recall, false alarms per day, per channel and overall; sensor alarm
+//    raises (data quality: gap, flatline, range, not finite) scored apart by the same
+//    rule, since the baselines have no such checks;
 //  * summary.json (ReportToJson) and the table `nightjar replay` prints (FormatReportText).
 //
 // Operator-load guidance used (per operator position; see ../shared/references/
@@ -145,8 +147,11 @@ AlarmRate ComputeAlarmRate(const ReplaySummary& summary);
 
 // One detector's scores against the labels: a row of the score table.
 struct DetectorScores {
-  std::string detector;  // "nightjar", "next = last", "static ±3σ" (UTF-8)
-  EventScoreTable table;
+  std::string detector;   // "nightjar", "next = last", "static ±3σ", "windowed gaussian"
+  EventScoreTable table;  // its anomaly alarm raises, event-wise
+  // Point-wise counts of the whole series (pointwise_scoring.h); set by ReplayToDirectory
+  // for every row, absent when not computed.
+  std::optional<PointScores> points;
 };
 
 // Scores against a labels file, by the project's one rule (event_scoring.h, written
@@ -156,15 +161,20 @@ struct LabelScores {
   ScoringOptions options;    // grace after each window
   double duration_s = 0.0;   // ReplaySummary::duration_s()
   std::int64_t windows = 0;  // all windows in the file, any kind
-  EventScoreTable table;     // per channel (column order) and overall
+  EventScoreTable table;     // anomaly alarm raises, per channel (column order) and overall
+  // nightjar's sensor alarm raises alone, pooled over channels, by the same rule: how
+  // often a data-quality alarm happened to fall in an anomaly window. Not a detection
+  // score; reported apart so that it is not mistaken for one.
+  EventScores sensor_alarms;
   // The same rule applied to each detector run on the recording: nightjar first (the
   // same numbers as `table`), then the baselines ReplayToDirectory adds
   // (baseline_scores.h). summary.json's "detectors" and the printed rows list these.
   std::vector<DetectorScores> detectors;
 };
 
-// Scores the summary's alarm raises (kind anomaly or sensor) against `windows`; one
-// detector row, "nightjar".
+// Scores the summary's anomaly alarm raises against `windows` (table; one detector row,
+// "nightjar", without point-wise counts) and its sensor alarm raises apart
+// (sensor_alarms). Event notices are neither.
 LabelScores ScoreAgainstLabels(const ReplaySummary& summary, std::span<const LabelWindow> windows,
                                std::string path, const ScoringOptions& options = {});
 

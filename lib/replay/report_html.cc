@@ -609,7 +609,7 @@ void AppendScoreTable(std::string& out, const ReportInput& input) {
       "<th>windows found</th><th>recall</th><th>raises</th><th>true</th><th>expected</th>"
       "<th>false</th><th>false / day</th><th>precision</th><th>F1</th>"
       "<th>mean delay</th>";
-  if (any_points) out += "<th>point F1</th>";
+  if (any_points) out += "<th>point precision</th><th>point recall</th><th>point F1</th>";
   out += "</tr></thead><tbody>\n";
   for (const ReportScoreRow& row : input.scores) {
     const EventScores& s = row.events.overall;
@@ -619,8 +619,12 @@ void AppendScoreTable(std::string& out, const ReportInput& input) {
            "</td><td>" + Count(s.false_alarms) + "</td><td>" + Fixed(s.false_alarms_per_day, 1) +
            "</td><td>" + Fixed(s.precision, 3) + "</td><td>" + Fixed(s.f1, 3) + "</td><td>" +
            (std::isfinite(s.mean_delay_s) ? Duration(s.mean_delay_s) : Fixed(kNaN, 0)) + "</td>";
-    if (any_points)
-      out += "<td>" + (row.points ? Fixed(row.points->f1(), 3) : Fixed(kNaN, 0)) + "</td>";
+    if (any_points) {
+      const std::optional<PointScores>& p = row.points;
+      out += "<td>" + (p ? Fixed(p->precision(), 3) : Fixed(kNaN, 0)) + "</td><td>" +
+             (p ? Fixed(p->recall(), 3) : Fixed(kNaN, 0)) + "</td><td>" +
+             (p ? Fixed(p->f1(), 3) : Fixed(kNaN, 0)) + "</td>";
+    }
     out += "</tr>\n";
   }
   out +=
@@ -628,7 +632,9 @@ void AppendScoreTable(std::string& out, const ReportInput& input) {
       "[start, end + " +
       Fixed(input.scoring.grace_s, 0) +
       " s]; raises during expected events are neither true nor false; all channels "
-      "pooled (see FORMAT.md, Scoring).</caption></table>\n";
+      "pooled; anomaly alarms only (sensor alarms are data quality). Point-wise: each "
+      "instant, flagged while any anomaly alarm is active, positive inside an anomaly "
+      "window (see FORMAT.md, Scoring).</caption></table>\n";
   for (const ReportScoreRow& row : input.scores) {
     out += "<details><summary>" + EscapeHtml(row.detector) +
            ": per channel and per window</summary>\n<table><thead><tr><th>channel</th>"

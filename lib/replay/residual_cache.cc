@@ -1,6 +1,7 @@
 #include "replay/residual_cache.h"
 
 #include <utility>
+#include <vector>
 
 #include "core/residual_tap.h"
 
@@ -40,6 +41,22 @@ core::Result<ResidualCache> BuildResidualCache(const std::string& path,
   Recorder recorder(cache.channels);
   ReplayOptions tapped = options;
   tapped.residual_tap = &recorder;
+  // Channels armed before the first row: loaded from a checkpoint.
+  std::vector<std::pair<bool, double>> armed_at_start;
+  tapped.on_engine_ready = [&armed_at_start, &options, &recorder](core::Engine& engine) {
+    if (options.on_engine_ready) {
+      if (core::Status ready = options.on_engine_ready(engine); !ready.ok()) return ready;
+      // Engine::LoadChannel replaces a channel's pipeline and the new one has no tap: set
+      // it again for every channel.
+      engine.set_residual_tap(&recorder);
+    }
+    armed_at_start.resize(engine.channel_count());
+    for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
+      const core::ChannelStatus status = engine.channel_status(id);
+      armed_at_start[id] = {status.state != core::ChannelState::kLearning, status.sample_period_s};
+    }
+    return core::Status::Ok();
+  };
   std::vector<std::pair<std::string, core::TimestampUs>> anomaly_raises;
   ReplayCallbacks callbacks;
   callbacks.on_alert = [&](const core::Alert& alert) {
@@ -59,6 +76,10 @@ core::Result<ResidualCache> BuildResidualCache(const std::string& path,
     ChannelResidualCache& channel = cache.channels[i];
     channel.name = outcome.summary.channels[i].name;
     channel.options = options.resolver ? options.resolver(channel.name) : options.engine.defaults;
+    if (i < armed_at_start.size() && armed_at_start[i].first) {
+      channel.armed_at_start = true;
+      channel.armed_period_s = armed_at_start[i].second;
+    }
     for (const auto& [name, time] : anomaly_raises) {
       if (name == channel.name) channel.base_anomaly_raises.push_back(time);
     }

@@ -7,7 +7,9 @@
 // milestones (tail window, arming and the sample period it armed with). It also keeps
 // the channel's resolved options, the base run's anomaly raise times per channel and
 // every raise that no threshold setting changes (sensor alarms), so scores can be
-// recomputed for any setting. See threshold_sweep.h for how it is re-evaluated.
+// recomputed for any setting. A channel that is already armed once on_engine_ready has run
+// (its checkpoint was loaded) is marked armed_at_start. See threshold_sweep.h for how it
+// is re-evaluated.
 // Memory: 17 bytes per charted sample (a day of five 1 Hz channels: about 7 MB).
 // Thread-safety: building is reentrant; a built cache is read-only and may be shared by
 // sweep threads. Ownership: plain values.
@@ -37,6 +39,9 @@ struct ChannelResidualCache {
   std::vector<double> residuals;
   std::vector<std::uint8_t> flags;
   double armed_period_s = 0.0;  // 0 if the channel never armed
+  // Armed before its first sample: loaded from a checkpoint (ReplayOptions::on_engine_ready,
+  // e.g. `tune --state-in`); armed_period_s is then the loaded sample period.
+  bool armed_at_start = false;
   // Anomaly raises of the base run, in time order.
   std::vector<core::TimestampUs> base_anomaly_raises;
 };
@@ -45,6 +50,7 @@ struct ResidualCache {
   std::string input;
   std::vector<ChannelResidualCache> channels;  // in column order
   // Raises that do not depend on the anomaly thresholds (sensor alarms), in time order.
+  // Not part of the tuning objective: detection scores count anomaly alarms only.
   std::vector<Raise> fixed_raises;
   double duration_s = 0.0;  // ReplaySummary::duration_s()
   ReplaySummary summary;    // of the base run

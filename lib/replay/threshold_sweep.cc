@@ -183,15 +183,56 @@ inline Gate Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
   return gate;
 }
 
+// A channel armed from a checkpoint (ChannelResidualCache::armed_at_start): the cache
+// cannot hold the loaded monitor (its scale and inflation estimates), so `monitor` learns
+// them in one unarmed pass over the cached samples, through the pipeline's learning gate
+// (not flat, and within kLearnGateSigmas once the scale is settled, so a fault in the
+// recording is not learnt; the spike tail from the second half, as in the engine's
+// warm-up). The caller arms it before the first sample.
+void PreLearn(core::ResidualMonitor& monitor, const ChannelResidualCache& channel) {
+  const std::size_t samples = channel.times.size();
+  for (std::size_t i = 0; i < samples; ++i) {
+    if (i == samples / 2) monitor.StartTailWindow();
+    const double residual = channel.residuals[i];
+    const bool learn =
+        (channel.flags[i] & kCachedFlatline) == 0 && WithinSigmas(monitor, residual);
+    monitor.Observe(residual, learn);
+  }
+}
+
+// PreLearn, then armed with the lane's own thresholds and empty charts.
+void PreLearnAndArm(Lane& lane, const ChannelResidualCache& channel,
+                    core::ThresholdDesigner& designer) {
+  PreLearn(lane.monitor, channel);
+  core::Result<core::Thresholds> thresholds =
+      designer.Design(lane.options.thresholds, channel.armed_period_s);
+  if (!thresholds.ok()) {
+    lane.status = thresholds.status();
+    return;
+  }
+  lane.monitor.Arm(*thresholds);
+  lane.monitor.ResetCharts();
+}
+
+// Thresholds that only carry `lambda`: a learner's charts are never read.
+core::Thresholds Carrier(double lambda) {
+  core::Thresholds carrier;
+  carrier.cusum_h = 1.0;
+  carrier.ewma_lambda = lambda;
+  carrier.ewma_l = 1.0;
+  carrier.spike_limit = 1.0;
+  return carrier;
+}
+
 // Bits of SharedLearning::gate.
 constexpr std::uint8_t kBaseGateOpen = 1;
 constexpr std::uint8_t kWithinSigmas = 2;
 
 // What every setting of one channel shares: the scale, autocorrelation and inflation
 // learning along the base setting's learning gate, as the chart inputs it gives. Indexed
-// by sample; only samples after `armed_at` are charted.
+// by sample; samples from `first_charted` on are charted.
 struct SharedLearning {
-  std::size_t armed_at = 0;  // the sample after whose Observe the charts are armed
+  std::size_t first_charted = 0;  // the sample after the one that armed (0: armed at start)
   bool armed = false;        // false: the channel never armed, nothing is charted
   double learning_tail = 0.0;
   std::vector<double> abs_z;
@@ -247,6 +288,16 @@ SharedLearning Learn(const ChannelResidualCache& channel,
   shared.cusum_input.resize(n);
   shared.gate.resize(n);
   shared.ewma_input.assign(shared.lambdas.size(), std::vector<double>(n));
+  if (channel.armed_at_start) {
+    PreLearnAndArm(base, channel, designer);
+    for (std::size_t l = 0; l < learners.size(); ++l) {
+      PreLearn(learners[l], channel);
+      learners[l].Arm(Carrier(shared.lambdas[l]));
+    }
+    shared.armed = base.status.ok() && !learners.empty();
+    shared.first_charted = 0;
+    if (shared.armed) shared.learning_tail = learners.back().learning_tail();
+  }
   for (std::size_t i = 0; i < n; ++i) {
     const Gate gate = Step(base, channel, i, designer);
     shared.gate[i] = static_cast<std::uint8_t>((gate.open ? kBaseGateOpen : 0) |
@@ -264,15 +315,10 @@ SharedLearning Learn(const ChannelResidualCache& channel,
       if (shared.armed) continue;
       if ((channel.flags[i] & kCachedTailWindow) != 0) learner.StartTailWindow();
       if ((channel.flags[i] & kCachedArmed) != 0) {
-        core::Thresholds carrier;
-        carrier.cusum_h = 1.0;
-        carrier.ewma_lambda = shared.lambdas[l];
-        carrier.ewma_l = 1.0;
-        carrier.spike_limit = 1.0;
-        learner.Arm(carrier);
+        learner.Arm(Carrier(shared.lambdas[l]));
         if (l + 1 == learners.size()) {
           shared.armed = true;
-          shared.armed_at = i;
+          shared.first_charted = i + 1;
           shared.learning_tail = learner.learning_tail();
         }
       }
@@ -470,14 +516,17 @@ std::vector<core::Result<SettingRaises>> RunCharts(
           std::find(shared.lambdas.begin(), shared.lambdas.end(), thresholds->ewma_lambda) -
           shared.lambdas.begin());
       // The arming sample's own bookkeeping (the pipeline counts it as armed).
-      Bookkeep(true, false, shared.abs_z[shared.armed_at], lane.held_out, lane.closed_loop_steps);
+      if (shared.first_charted > 0) {
+        Bookkeep(true, false, shared.abs_z[shared.first_charted - 1], lane.held_out,
+                 lane.closed_loop_steps);
+      }
     }
     lane_of[s] = lanes.size();
     lanes.push_back(std::move(lane));
   }
   if (shared.armed) {
     const std::size_t n = channel.times.size();
-    for (std::size_t from = shared.armed_at + 1; from < n; from += kBlockSamples) {
+    for (std::size_t from = shared.first_charted; from < n; from += kBlockSamples) {
       ChartBlock(lanes, channel, shared, from, std::min(n, from + kBlockSamples));
     }
   }
@@ -519,6 +568,7 @@ core::Result<std::vector<core::TimestampUs>> EvaluateSettingOwnGate(
       ValidOptions(channel, std::span<const SweepSetting>(&setting, 1));
   if (!valid[0]) return InvalidSetting(channel, setting);
   Lane lane(*valid[0]);
+  if (channel.armed_at_start) PreLearnAndArm(lane, channel, designer);
   for (std::size_t i = 0; i < channel.times.size(); ++i) Step(lane, channel, i, designer);
   if (!lane.status.ok()) return lane.status;
   return std::move(lane.raises);
@@ -637,7 +687,8 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
     // Overall F1 with channel `c` at setting `s` and every other at its present choice.
     std::vector<Raise> pooled;
     const auto overall_f1 = [&](std::size_t c, std::size_t s) {
-      pooled = cache.fixed_raises;
+      // Anomaly raises only, as replay scores detection (sensor alarms are data quality).
+      pooled.clear();
       for (std::size_t o = 0; o < channel_count; ++o) {
         const std::size_t pick = o == c ? s : chosen[o];
         for (const core::TimestampUs t : *candidates[o].raises[pick]) {

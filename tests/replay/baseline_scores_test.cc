@@ -1,13 +1,16 @@
-// The three score rows of a labelled replay: nightjar, "next = last" and static limits,
-// each computed by the one scoring rule (event_scoring.h, replay_data/FORMAT.md
-// "Scoring"), checked against the same detectors run independently here.
+// The four score rows of a labelled replay: nightjar, "next = last", static limits and
+// the windowed gaussian, each computed by the one scoring rule (event_scoring.h and
+// pointwise_scoring.h, replay_data/FORMAT.md "Scoring"), checked against the same
+// detectors run independently here.
 //
 // The recording is invented for the test (1 Hz, one channel): a triangle wave of
 // amplitude 10 and period 300 s plus noise (sd 0.2). Over its warm-up the static
 // baseline learns sigma ~ 10 / sqrt(3) (the standard deviation of a triangle wave of
 // amplitude A is A / sqrt(3), a textbook fact, from memory), so its limits sit near
 // mean +- 17. A slow drift to +6 keeps every value inside them (10 + 6 + noise < 17):
-// the static limits must miss it. A +30 step is far outside: they must catch it.
+// the static limits must miss it. A +30 step is far outside: they must catch it. The
+// windowed gaussian (100 samples) sees sigma ~ 3.9 on a third of a triangle period (a
+// ramp of range R has sd R / sqrt(12), from memory) and must catch the step too.
 #include "replay/baseline_scores.h"
 
 #include <gtest/gtest.h>
@@ -29,6 +32,7 @@
 #include "replay/replay_summary.h"
 #include "replay/static_limits_baseline.h"
 #include "replay/timestamp.h"
+#include "replay/windowed_gaussian_baseline.h"
 
 namespace nightjar::replay {
 namespace {
@@ -123,7 +127,8 @@ TEST(BaselineScoresTest, StaticLimitsMissTheDriftInsideThemAndCatchTheStep) {
   const BaselineOutcome outcome =
       ScoreBaselines(input, FastOptions(), Windows(), names, static_cast<double>(kRows));
   ASSERT_TRUE(outcome.status.ok()) << outcome.status.message();
-  ASSERT_EQ(outcome.rows.size(), 2u);
+  ASSERT_EQ(outcome.rows.size(), 3u);
+  EXPECT_EQ(outcome.rows[2].detector, "windowed gaussian");
   EXPECT_EQ(outcome.rows[0].detector, "next = last");
   EXPECT_EQ(outcome.rows[1].detector,
             "static \xC2\xB1"
@@ -153,6 +158,34 @@ TEST(BaselineScoresTest, StaticLimitsMissTheDriftInsideThemAndCatchTheStep) {
       ScoreEventsByChannel(RaisesOf(edges), Windows(), names, static_cast<double>(kRows)).overall,
       "static");
 
+  // The windowed gaussian by hand over the same values: same raises, and it finds the step.
+  WindowedGaussianBaseline gaussian_by_hand(FastOptions().engine.defaults);
+  std::vector<BaselineEdge> gaussian_edges;
+  core::Result<std::unique_ptr<RecordingReader>> again = RecordingReader::Open(input);
+  ASSERT_TRUE(again.ok());
+  while ((*again)->Next(&row).value()) {
+    gaussian_by_hand.Process("skid.level", row.time, *row.values[0], gaussian_edges);
+  }
+  const EventScores& gaussian = outcome.rows[2].table.overall;
+  ExpectSameScores(
+      gaussian,
+      ScoreEventsByChannel(RaisesOf(gaussian_edges), Windows(), names, static_cast<double>(kRows))
+          .overall,
+      "windowed gaussian");
+  ASSERT_EQ(gaussian.outcomes.size(), 2u);
+  EXPECT_TRUE(gaussian.outcomes[1].detected) << "the +30 step leaves any 3 sigma band";
+  EXPECT_DOUBLE_EQ(gaussian.outcomes[1].delay_s, 0.0) << "on its first sample";
+
+  // Every row has point-wise counts over the same points: one per row of the recording,
+  // positive inside the two windows (900 + 60 rows).
+  for (const DetectorScores& scored : outcome.rows) {
+    SCOPED_TRACE(scored.detector);
+    ASSERT_TRUE(scored.points.has_value());
+    EXPECT_EQ(scored.points->samples, kRows);
+    EXPECT_EQ(scored.points->positives, (kDriftTo - kDriftFrom) + (kStepTo - kStepFrom));
+  }
+  EXPECT_GE(outcome.rows[2].points->true_positives, 1) << "flagged at the step";
+
   // "next = last": the engine with only the forecaster changed, scored by the same rule.
   ReplayOptions last_value = FastOptions();
   last_value.engine.defaults.forecaster = core::Forecaster::kLastValue;
@@ -181,7 +214,8 @@ TEST(BaselineScoresTest, DirectoryOutputHasThreeRowsInJsonTextAndPage) {
   ASSERT_TRUE(report.status.ok()) << report.status.message();
   ASSERT_TRUE(report.scores.has_value());
   const std::vector<DetectorScores>& rows = report.scores->detectors;
-  ASSERT_EQ(rows.size(), 3u);
+  ASSERT_EQ(rows.size(), 4u);
+  EXPECT_EQ(rows[3].detector, "windowed gaussian");
   EXPECT_EQ(rows[0].detector, "nightjar");
   EXPECT_EQ(rows[1].detector, "next = last");
   EXPECT_EQ(rows[2].detector,
@@ -192,8 +226,13 @@ TEST(BaselineScoresTest, DirectoryOutputHasThreeRowsInJsonTextAndPage) {
 
   const nlohmann::json summary = nlohmann::json::parse(ReadText(dir + "/summary.json"));
   const nlohmann::json& detectors = summary.at("scores").at("detectors");
-  ASSERT_EQ(detectors.size(), 3u);
+  ASSERT_EQ(detectors.size(), 4u);
   for (std::size_t i = 0; i < rows.size(); ++i) {
+    ASSERT_TRUE(rows[i].points.has_value()) << rows[i].detector;
+    EXPECT_EQ(detectors[i].at("points").at("points"), kRows);
+    EXPECT_EQ(detectors[i].at("points").at("flagged"), rows[i].points->flagged);
+    EXPECT_EQ(detectors[i].at("points").at("true_positives"), rows[i].points->true_positives);
+    EXPECT_DOUBLE_EQ(detectors[i].at("points").at("f1").get<double>(), rows[i].points->f1());
     EXPECT_EQ(detectors[i].at("detector"), rows[i].detector);
     EXPECT_EQ(detectors[i].at("overall").at("detected"), rows[i].table.overall.detected);
     EXPECT_EQ(detectors[i].at("overall").at("false_alarms"), rows[i].table.overall.false_alarms);

@@ -589,7 +589,7 @@ TEST(AlarmRateTest, EventNoticesAreNotAlarms) {
   EXPECT_EQ(rate.worst_window_raises, 2);
 }
 
-TEST(LabelScoresTest, UsesTheSharedScoringRuleOnAlarmRaisesOnly) {
+TEST(LabelScoresTest, ScoresAnomalyAlarmsAndReportsSensorAlarmsApart) {
   // The rule itself is event_scoring's (tested there, replay_data/FORMAT.md "Scoring");
   // here: which raises reach it, the duration it is given, and the per-channel rows.
   ReplaySummary summary;
@@ -612,20 +612,29 @@ TEST(LabelScoresTest, UsesTheSharedScoringRuleOnAlarmRaisesOnly) {
   const LabelScores scores = ScoreAgainstLabels(summary, windows, "x.labels.csv");
   EXPECT_DOUBLE_EQ(scores.duration_s, 86400.0) << "span plus the shortest sample period";
   EXPECT_EQ(scores.windows, 3);
+  // Detection scores count the anomaly alarms only: 50 (during the event) and 5000.
   const EventScores& all = scores.table.overall;
-  EXPECT_EQ(all.raises, 3);
-  EXPECT_EQ(all.true_raises, 1);      // 120 on b
+  EXPECT_EQ(all.raises, 2);
+  EXPECT_EQ(all.true_raises, 0);
   EXPECT_EQ(all.expected_raises, 1);  // 50 during the event
   EXPECT_EQ(all.false_alarms, 1);     // 5000
-  EXPECT_EQ(all.detected, 1);
+  EXPECT_EQ(all.detected, 0) << "the sensor alarm at 120 is not a detection";
   ASSERT_EQ(all.outcomes.size(), 2u);
-  EXPECT_EQ(all.outcomes[0].first_channel, "b");
-  EXPECT_DOUBLE_EQ(all.outcomes[0].delay_s, 20.0);
   EXPECT_DOUBLE_EQ(all.false_alarms_per_day, 1.0);
   ASSERT_EQ(scores.table.channels.size(), 2u);
   EXPECT_EQ(scores.table.channels[0].channel, "a");
   EXPECT_EQ(scores.table.channels[0].scores.detected, 0);
-  EXPECT_EQ(scores.table.channels[1].scores.detected, 1);
+  EXPECT_EQ(scores.table.channels[1].scores.detected, 0);
+  // The sensor alarm is reported apart, by the same rule: in the first window, after 20 s.
+  const EventScores& sensor = scores.sensor_alarms;
+  EXPECT_EQ(sensor.raises, 1);
+  EXPECT_EQ(sensor.true_raises, 1);
+  EXPECT_EQ(sensor.detected, 1);
+  ASSERT_EQ(sensor.outcomes.size(), 2u);
+  EXPECT_EQ(sensor.outcomes[0].first_channel, "b");
+  EXPECT_DOUBLE_EQ(sensor.outcomes[0].delay_s, 20.0);
+  ASSERT_EQ(scores.detectors.size(), 1u);
+  EXPECT_FALSE(scores.detectors[0].points.has_value()) << "point-wise needs the replay's rows";
 }
 
 TEST(ReportJsonTest, IsValidJsonWithEveryCount) {

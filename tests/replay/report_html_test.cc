@@ -277,10 +277,12 @@ TEST(ReportHtmlTest, HeaderAlertsWindowsAndScores) {
   // Score row: window [5, 15] found by the raise at 10 (delay 5 s); raises 4: true 1 (10 s),
   // false 3 (1000, 2000, 3000 s; outside [5, 15 + 60] and the event [100, 200 + 60]) -> precision
   // 0.250, recall 1.000, F1 = 2 * 0.25 / 1.25 = 0.400; false per day = 3 / (3601 / 86400) = 72.0
-  // (to one decimal). Point F1 of empty counts = 1.
+  // (to one decimal). Point precision, recall and F1 of empty counts = 1 each.
   EXPECT_NE(page.find("<tr><td>nightjar</td><td>1 / 1</td><td>1.000</td><td>4</td><td>1</td>"
                       "<td>0</td><td>3</td><td>72.0</td><td>0.250</td><td>0.400</td>"
-                      "<td>5 s</td><td>1.000</td></tr>"),
+                      "<td>5 s</td><td>1.000</td><td>1.000</td><td>1.000</td></tr>"),
+            std::string::npos);
+  EXPECT_NE(page.find("<th>point precision</th><th>point recall</th><th>point F1</th>"),
             std::string::npos);
   // Markers and windows in the data block.
   const nlohmann::json data = DataOf(page);

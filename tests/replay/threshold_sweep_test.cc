@@ -23,6 +23,7 @@
 #include <optional>
 #include <random>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "config/config.h"
@@ -47,9 +48,11 @@ std::string WriteText(const std::string& name, const std::string& content) {
   return path;
 }
 
-// Two 1 Hz channels: a flow (50 m3/h, 5-minute swing, noise sd 0.3) with a +4.0 step on
-// rows [step_at, step_at + step_rows) and a temperature with a slow drift from drift_at.
-std::string StepCsv(int rows, int step_at, int step_rows, int drift_at, std::uint64_t seed) {
+// Two 1 Hz channels (rows 1 s apart from At(first_row)): a flow (50 m3/h, 5-minute swing, noise sd
+// 0.3) with a +4.0 step on rows [step_at, step_at + step_rows) and a temperature with a slow drift
+// from drift_at.
+std::string StepCsv(int rows, int step_at, int step_rows, int drift_at, std::uint64_t seed,
+                    int first_row = 0) {
   std::mt19937_64 rng(seed);
   std::normal_distribution<double> noise(0.0, 1.0);
   std::string csv = "timestamp,skid.flow,skid.temp\n";
@@ -60,7 +63,7 @@ std::string StepCsv(int rows, int step_at, int step_rows, int drift_at, std::uin
     if (drift_at >= 0 && i >= drift_at) temp += 0.004 * (i - drift_at);
     std::array<char, 64> cells{};
     std::snprintf(cells.data(), cells.size(), ",%.3f,%.3f\n", flow, temp);
-    csv += FormatTimestamp(At(i));
+    csv += FormatTimestamp(At(first_row + i));
     csv += cells.data();
   }
   return csv;
@@ -75,6 +78,63 @@ ReplayOptions FastOptions() {
   options.engine.defaults.predictor.window = 8;
   options.engine.defaults.time_of_day_features = false;
   return options;
+}
+
+TEST(ThresholdSweepTest, ChannelsArmedFromAStateAreReRunArmed) {
+  // `tune --state-in`: learn on 3000 clean rows and keep each channel's checkpoint, then
+  // tune on the next 250 rows, fewer than the 300-sample warm-up, with a +4 step (about
+  // 13 residual sigmas) on the flow at rows 150..199. Started fresh, no channel would arm
+  // and no setting could raise; started from the state, the cache marks the channels armed
+  // and the candidates re-run armed, so the configured setting finds the step.
+  const std::string learn_path = WriteText("learn.csv", StepCsv(3000, -1, 0, -1, 21));
+  std::vector<std::pair<std::string, std::vector<std::uint8_t>>> saved;
+  ReplayOptions learn = FastOptions();
+  learn.on_engine_done = [&saved](const core::Engine& engine) {
+    for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
+      std::vector<std::uint8_t> bytes;
+      engine.SaveChannel(id, bytes);
+      saved.emplace_back(engine.channel_name(id), std::move(bytes));
+    }
+    return core::Status::Ok();
+  };
+  ASSERT_TRUE(RunReplay(learn_path, learn).status.ok());
+  ASSERT_EQ(saved.size(), 2u);
+
+  const std::string tune_path = WriteText("tune.csv", StepCsv(250, 150, 50, -1, 22, 3000));
+  ReplayOptions tune = FastOptions();
+  tune.on_engine_ready = [&saved](core::Engine& engine) {
+    for (const auto& [name, bytes] : saved) {
+      if (core::Status loaded = engine.LoadChannel(name, bytes); !loaded.ok()) return loaded;
+    }
+    return core::Status::Ok();
+  };
+  core::Result<ResidualCache> armed = BuildResidualCache(tune_path, tune);
+  ASSERT_TRUE(armed.ok()) << armed.status().message();
+  ASSERT_EQ(armed->channels.size(), 2u);
+  for (const ChannelResidualCache& channel : armed->channels) {
+    EXPECT_TRUE(channel.armed_at_start) << channel.name;
+    EXPECT_EQ(channel.times.size(), 250u) << channel.name << ": residuals kept after the load";
+    EXPECT_NEAR(channel.armed_period_s, 1.0, 1e-6) << channel.name << ": the learnt 1 s period";
+  }
+  const ChannelResidualCache& flow = armed->channels[0];
+  ASSERT_EQ(flow.name, "skid.flow");
+  EXPECT_FALSE(flow.base_anomaly_raises.empty()) << "the armed replay itself raises";
+  core::ThresholdDesigner designer;
+  core::Result<std::vector<core::TimestampUs>> raises =
+      EvaluateSetting(flow, SettingOf(flow.options), designer);
+  ASSERT_TRUE(raises.ok()) << raises.status().message();
+  ASSERT_FALSE(raises->empty()) << "re-run armed from the first sample";
+  EXPECT_GE(raises->front(), At(3000 + 150));
+  EXPECT_LE(raises->front(), At(3000 + 199));
+
+  // The same recording without the state: nothing arms, nothing can raise.
+  core::Result<ResidualCache> fresh = BuildResidualCache(tune_path, FastOptions());
+  ASSERT_TRUE(fresh.ok());
+  EXPECT_FALSE(fresh->channels[0].armed_at_start);
+  core::Result<std::vector<core::TimestampUs>> none =
+      EvaluateSetting(fresh->channels[0], SettingOf(fresh->channels[0].options), designer);
+  ASSERT_TRUE(none.ok());
+  EXPECT_TRUE(none->empty());
 }
 
 void ExpectBaseReproduced(const ResidualCache& cache) {
@@ -222,7 +282,7 @@ TEST(ThresholdSweepTest, LabelledSweepNeverLowersTheOverallF1) {
   EXPECT_GE(result->chosen_overall_f1, result->base_overall_f1);
   // Recomputed from the chosen settings: the reported overall F1 is what they give.
   core::ThresholdDesigner designer;
-  std::vector<Raise> pooled = cache->fixed_raises;
+  std::vector<Raise> pooled;  // anomaly raises only, as replay scores detection
   for (std::size_t c = 0; c < cache->channels.size(); ++c) {
     const auto raises = EvaluateSetting(cache->channels[c], result->channels[c].chosen, designer);
     ASSERT_TRUE(raises.ok());

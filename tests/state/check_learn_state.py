@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""End-to-end check of `nightjar learn` and `nightjar replay --state-in`.
+"""End-to-end check of `nightjar learn` and `--state-in` (replay, learn, tune).
 
 Usage: check_learn_state.py NIGHTJAR_BINARY WORK_DIR
 
@@ -11,7 +11,9 @@ second half alone is shorter than the warm-up), without it the channels stay lea
 and raise nothing; a flipped byte in one state file is named on stderr, that channel
 starts fresh, the other stays armed and the exit code is 0; a changed hidden size is
 reported as an options mismatch; a missing state folder exits 1; too short a recording
-for learn warns per channel and exits 0. Standard library only.
+for learn warns per channel and exits 0; `learn --state-in` goes on learning from a
+state; `tune --state-in` re-runs the loaded channels armed (the configured setting raises
+on the step) where the same tune without it cannot arm. Standard library only.
 """
 import json
 import math
@@ -161,6 +163,35 @@ def main():
                        os.path.join(work, "short_state"))
     check(code == 0 and err.count("still learning") == 2, "short learn warns: %d %r" % (code, err))
     check(len(os.listdir(os.path.join(work, "short_state"))) == 2, "short learn wrote the state")
+
+    # learn --state-in goes on from an earlier state: 200 + 400 rows pass the 500 warm-up.
+    more = write_recording(os.path.join(work, "more.csv"), 200, 400, seed=5)
+    code, out, err = run(nightjar, "learn", "--input", more, "--config", config, "--state-in",
+                         os.path.join(work, "short_state"), "--state-out",
+                         os.path.join(work, "more_state"))
+    check(code == 0 and "2 channels loaded" in err, "learn --state-in loads: %d %r" % (code, err))
+    check(all(any(name in line and "armed" in line for line in out.splitlines())
+              for name in CHANNELS), "learnt on in turn, the channels arm: %r" % out)
+
+    # tune --state-in: the later half is too short to arm alone, so without the state no
+    # setting raises anything; from the state the configured setting raises on the step.
+    def base_rate(tune_out, channel):
+        lines = tune_out.splitlines()
+        for i, line in enumerate(lines):
+            if line.strip().startswith(channel + ":") and i + 1 < len(lines):
+                return float(lines[i + 1].split("(base setting ")[1].split("/day")[0])
+        return None
+    code, cold_out, err = run(nightjar, "tune", "--input", later, "--config", config, "--no-labels",
+                              "--out", os.path.join(work, "tuned_cold.yaml"))
+    check(code == 0 and base_rate(cold_out, "skid.flow") == 0.0,
+          "tune without state: nothing armed, nothing raised: %d %r %r" % (code, cold_out, err))
+    code, warm_out, err = run(nightjar, "tune", "--input", later, "--config", config,
+                              "--no-labels", "--state-in", state, "--out",
+                              os.path.join(work, "tuned_warm.yaml"))
+    check(code == 0 and "2 channels loaded" in err, "tune --state-in loads: %d %r" % (code, err))
+    rate = base_rate(warm_out, "skid.flow")
+    check(rate is not None and rate > 0.0, "tune --state-in re-runs armed: %r" % warm_out)
+    check(os.path.isfile(os.path.join(work, "tuned_warm.yaml")), "tune --state-in writes")
 
     # Usage: --state-out is required.
     code, _, err = run(nightjar, "learn", "--input", good)
