@@ -50,7 +50,26 @@ WorkerCounters EngineWorker::counters() const {
   c.channels_kept = kept_.load(std::memory_order_relaxed);
   c.channels_reset = reset_.load(std::memory_order_relaxed);
   c.checkpoints = checkpoints_.load(std::memory_order_relaxed);
+  c.holes = holes_.load(std::memory_order_relaxed);
   return c;
+}
+
+bool EngineWorker::Offer(SampleItem&& sample) {
+  const auto hole = open_holes_.empty() ? open_holes_.end() : open_holes_.find(sample.channel);
+  if (queue_.TryPush(std::move(sample))) {
+    if (hole != open_holes_.end()) open_holes_.erase(hole);
+    return true;
+  }
+  if (hole == open_holes_.end()) {  // the first drop of this hole: mark where it starts
+    open_holes_.insert(sample.channel);
+    holes_.fetch_add(1, std::memory_order_relaxed);
+    queue_.PushMarker(SampleItem{.channel = std::move(sample.channel),
+                                 .time = sample.time,
+                                 .value = 0.0,
+                                 .arrived = sample.arrived,
+                                 .hole = true});
+  }
+  return false;
 }
 
 void EngineWorker::Run() {
@@ -67,7 +86,7 @@ void EngineWorker::Run() {
       if (const auto* command = std::get_if<CommandItem>(&control)) {
         HandleCommand(*command, now);
       } else if (const auto* reload = std::get_if<ReloadItem>(&control)) {
-        HandleReload(*reload);
+        HandleReload(*reload, now);
       } else if (std::holds_alternative<CheckpointItem>(control)) {
         Checkpoint("interval");
       } else {
@@ -96,7 +115,24 @@ core::TimestampUs EngineWorker::EngineNow(core::TimestampUs wall) const {
   return newest_time_ + std::max<core::TimestampUs>(0, wall - newest_wall_);
 }
 
+void EngineWorker::HandleHole(const SampleItem& marker) {
+  const std::optional<core::ChannelId> id = engine_.FindChannel(marker.channel);
+  if (id) engine_.NoteDiscontinuity(*id, core::Discontinuity::kDropped);
+  const std::uint64_t n = ++holes_logged_;
+  // Powers of two only: under a lasting overload every channel has holes.
+  if ((n & (n - 1)) == 0) {
+    spdlog::warn(
+        "worker {}: samples of {} dropped at a full queue ({} such holes so far): not a "
+        "sensor gap, no gap alarm for it",
+        index_, marker.channel, n);
+  }
+}
+
 void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now) {
+  if (sample.hole) {
+    HandleHole(sample);
+    return;
+  }
   std::optional<core::ChannelId> id = engine_.FindChannel(sample.channel);
   if (!id && state_.LoadNewChannel(engine_, sample.channel)) {
     id = engine_.FindChannel(sample.channel);
@@ -170,7 +206,7 @@ void EngineWorker::HandleCommand(const CommandItem& item, core::TimestampUs now)
   }
 }
 
-void EngineWorker::HandleReload(const ReloadItem& item) {
+void EngineWorker::HandleReload(const ReloadItem& item, core::TimestampUs now) {
   config_ = item.config;
   std::uint64_t kept = 0;
   std::uint64_t reset = 0;
@@ -180,7 +216,10 @@ void EngineWorker::HandleReload(const ReloadItem& item) {
       ++kept;
       continue;
     }
-    if (const core::Status s = engine_.ResetChannel(id, options); !s.ok()) {
+    if (const core::Status s =
+            engine_.ResetChannel(id, options, EngineNow(now),
+                                 "channel reset by a config reload (its options changed)", alerts_);
+        !s.ok()) {
       spdlog::error("reload: {} keeps its old options: {}", engine_.channel_name(id), s.message());
       ++kept;
       continue;
@@ -190,6 +229,7 @@ void EngineWorker::HandleReload(const ReloadItem& item) {
     views_[id].dirty = true;
   }
   engine_.Reconfigure(config_->engine, config_->Resolver());
+  PublishAlerts();  // the clears of reset channels, before anything they learn anew
   kept_.fetch_add(kept, std::memory_order_relaxed);
   reset_.fetch_add(reset, std::memory_order_relaxed);
 }

@@ -299,7 +299,10 @@ TEST(RuntimeStateTest, AChannelResetByAReloadIsCheckpointedFresh) {
   // A longer warm-up for every channel: all of them learn again.
   const auto changed = Load(Config(state_dir, 300.0, 400));
   ASSERT_TRUE(changed);
-  d->runtime->Reload(changed);
+  const core::Result<ServiceOptions> next =
+      BuildServiceOptions(*changed, "test.yaml", std::nullopt);
+  ASSERT_TRUE(next.ok()) << next.status().message();
+  d->runtime->Reload(changed, *next);
   Feed(*d, 300, 310);
   ASSERT_TRUE(
       WaitFor([&] { return d->runtime->counters().samples == 930; }, std::chrono::seconds(20)));
