@@ -77,8 +77,7 @@ void EngineWorker::Run() {
   std::vector<ControlItem> controls;
   bool stopping = false;
   state_.LoadAtStart(engine_);
-  views_.resize(engine_.channel_count());
-  channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+  TrackChannels(state_.loads_from_save_dir());
   while (!stopping) {
     queue_.PopAll(kSweepPeriod, samples, controls);
     const core::TimestampUs now = clock_();
@@ -104,9 +103,15 @@ void EngineWorker::Run() {
   Checkpoint("stop");
 }
 
+void EngineWorker::TrackChannels(bool saved) {
+  views_.resize(engine_.channel_count());
+  unsaved_.resize(engine_.channel_count(), saved ? 0 : 1);
+  channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+}
+
 void EngineWorker::Checkpoint(std::string_view why) {
   if (!state_.saves()) return;
-  state_.Save(engine_, why);
+  state_.Save(engine_, why, &unsaved_);
   checkpoints_.fetch_add(1, std::memory_order_relaxed);
 }
 
@@ -136,8 +141,7 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
   std::optional<core::ChannelId> id = engine_.FindChannel(sample.channel);
   if (!id && state_.LoadNewChannel(engine_, sample.channel)) {
     id = engine_.FindChannel(sample.channel);
-    views_.resize(engine_.channel_count());
-    channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+    TrackChannels(state_.loads_from_save_dir());
   }
   if (!id) {
     core::Result<core::ChannelId> added = engine_.AddChannel(sample.channel);
@@ -151,8 +155,7 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
       return;
     }
     id = *added;
-    views_.resize(engine_.channel_count());
-    channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+    TrackChannels(false);
   }
   engine_.Process(*id, sample.time, sample.value, alerts_);
   samples_.fetch_add(1, std::memory_order_relaxed);
@@ -161,6 +164,7 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
     newest_time_ = sample.time;
     newest_wall_ = now;
   }
+  unsaved_[*id] = 1;
   ChannelView& view = views_[*id];
   view.last_sample = view.sampled ? std::max(view.last_sample, sample.time) : sample.time;
   view.sampled = true;
@@ -200,9 +204,9 @@ void EngineWorker::HandleCommand(const CommandItem& item, core::TimestampUs now)
       bus_.Publish(topics_.reply_topic, CommandReplyJson(item.parsed, result), topics_.qos, false);
   if (!published.ok()) spdlog::warn("reply not published: {}", published.message());
   PublishAlerts();
-  if (const std::optional<core::ChannelId> id = engine_.FindChannel(command.channel);
-      id && views_[*id].sampled) {
-    MaybePublishState(*id, now, true);
+  if (const std::optional<core::ChannelId> id = engine_.FindChannel(command.channel)) {
+    unsaved_[*id] = 1;  // an acknowledge or shelve is part of its checkpoint
+    if (views_[*id].sampled) MaybePublishState(*id, now, true);
   }
 }
 
@@ -227,6 +231,7 @@ void EngineWorker::HandleReload(const ReloadItem& item, core::TimestampUs now) {
     ++reset;
     spdlog::info("reload: {} has new options and learns again", engine_.channel_name(id));
     views_[id].dirty = true;
+    unsaved_[id] = 1;
   }
   engine_.Reconfigure(config_->engine, config_->Resolver());
   PublishAlerts();  // the clears of reset channels, before anything they learn anew
@@ -236,6 +241,11 @@ void EngineWorker::HandleReload(const ReloadItem& item, core::TimestampUs now) {
 
 void EngineWorker::PublishAlerts() {
   for (const core::Alert& alert : alerts_) {
+    // An alert is an alarm edge, so the channel's checkpoint changed (a gap raised by the
+    // clock comes without a sample).
+    if (const std::optional<core::ChannelId> id = engine_.FindChannel(alert.channel)) {
+      unsaved_[*id] = 1;
+    }
     ChannelTopic(topics_.alert_prefix, alert.channel, &topic_);
     payload_.clear();
     core::AppendAlertJson(alert, &payload_);

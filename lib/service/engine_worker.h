@@ -36,8 +36,10 @@
 //
 // State (worker_state.h): before its first sample the thread loads the checkpoints of its
 // own channels; a CheckpointItem (queued by the runtime every checkpoint_interval_s)
-// writes all of them. Files are written on this thread, never the network thread: the
-// network thread only TryPush()es, so a slow disk can fill this worker's queue (samples
+// writes those that changed since their last checkpoint (a sample, an alert, a command or
+// a reload reset touched them; a channel loaded from another folder than the state folder
+// counts as changed), and so does the stop. Files are written on this thread, never the network
+// thread: the network thread only TryPush()es, so a slow disk can fill this worker's queue (samples
 // beyond its capacity are dropped and counted, as under any overload) but never blocks
 // intake; and since only this thread touches its channels, a checkpoint sits between two
 // samples, never inside one. A channel loaded from a file publishes its state at its first
@@ -149,6 +151,9 @@ class EngineWorker {
   void Run();
   void HandleSample(const SampleItem& sample, core::TimestampUs now);
   void HandleHole(const SampleItem& marker);
+  // Grows the per-channel vectors to the engine's channel count; new ones are unsaved
+  // unless `saved` (loaded from the state folder itself).
+  void TrackChannels(bool saved);
   void HandleCommand(const CommandItem& item, core::TimestampUs now);
   void HandleReload(const ReloadItem& item, core::TimestampUs now);
   void Checkpoint(std::string_view why);
@@ -178,6 +183,7 @@ class EngineWorker {
   std::shared_ptr<const config::LoadedConfig> config_;
   core::Engine engine_;
   std::vector<ChannelView> views_;
+  std::vector<char> unsaved_;  // by ChannelId: changed since its last checkpoint
   std::vector<core::Alert> alerts_;
   std::string topic_;
   std::string payload_;
