@@ -169,6 +169,9 @@ void Runtime::Reload(std::shared_ptr<const config::LoadedConfig> config,
                      const ServiceOptions& next) {
   const std::vector<std::string> changed =
       config::ChangedServiceKeys(config_->service, config->service);
+  // The workers get the new channel options before any sample of a new topic can reach
+  // them (control items go ahead of samples).
+  for (auto& worker : workers_) worker->PushControl(ReloadItem{config});
   if (std::find(changed.begin(), changed.end(), "mqtt.subscriptions") != changed.end()) {
     ApplySubscriptions(next.intake);
   }
@@ -190,7 +193,6 @@ void Runtime::Reload(std::shared_ptr<const config::LoadedConfig> config,
   }
   if (!started_config_) started_config_ = config_;
   config_ = config;
-  for (auto& worker : workers_) worker->PushControl(ReloadItem{config});
   reloads_.fetch_add(1, std::memory_order_relaxed);
   status_due_.store(true);
 }

@@ -38,6 +38,9 @@ true` and the paho witness sets it on its socket, so Nagle's algorithm (which ho
 write until the peer's delayed ACK, 40 ms on Linux) is off on every hop. --nagle leaves it
 on in the broker and the witness, to show what it costs.
 
+State: the daemon runs with daemon.state_dir "" (no checkpoints), so no run sees another's
+channels.
+
 Repetitions: the machine is shared, so one run says little. Each of --repeat rounds
 measures the mosquitto_sub baseline and then every mode, after one discarded warm-up drain
 (the broker's first burst allocates its queues). Each mode's ratio is taken against the
@@ -226,6 +229,10 @@ def nightjar_config(mode, queue_capacity, metrics_port, workers):
         f"  workers: {workers}\n"
         f"  queue_capacity: {queue_capacity}\n"
         f"  metrics_listen: \"127.0.0.1:{metrics_port}\"\n"
+        # No checkpoints: with the default state_dir every run loaded the previous run's
+        # channels (whose sample times are ahead of this run's, so every sample was dropped
+        # as out of order) and wrote them all back on stop.
+        "  state_dir: \"\"\n"
         "  publish_interval_s: 5\n")
 
 
