@@ -41,6 +41,13 @@ on in the broker and the witness, to show what it costs.
 State: the daemon runs with daemon.state_dir "" (no checkpoints), so no run sees another's
 channels.
 
+CPU per message: wall-clock rates on a shared 2-core machine follow the load more than the
+code (the scheduler shares CPU per thread, so a consumer with three busy threads gets more of
+a loaded machine than mosquitto_sub with one, and its "ratio" rises with the load). So each
+drain also takes the consumer's own CPU time (user + system, all threads, from
+/proc/PID/stat and wait4) per message; that ratio does not depend on who else is running.
+nightjar's figure includes its metrics endpoint answering the 20 ms polls.
+
 Repetitions: the machine is shared, so one run says little. Each of --repeat rounds
 measures the mosquitto_sub baseline and then every mode, after one discarded warm-up drain
 (the broker's first burst allocates its queues). Each mode's ratio is taken against the
@@ -257,8 +264,15 @@ def settled(m):
             + m.get("nightjar_samples_rejected_total", 0))
 
 
+def cpu_seconds(pid):
+    """user + system CPU time of a running process so far (all its threads)."""
+    with open(f"/proc/{pid}/stat") as f:
+        fields = f.read().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
 def baseline_drain(broker, names, per_channel, workdir):
-    """mosquitto_sub's drain rate of the burst, in messages/s."""
+    """mosquitto_sub's drain of the burst: (messages/s, CPU microseconds per message)."""
     n = len(names) * per_channel
     out_path = os.path.join(workdir, "sub.out")
     pub = Witness(broker.port, "bench-pub-baseline")
@@ -272,16 +286,19 @@ def baseline_drain(broker, names, per_channel, workdir):
     wait_until(lambda: "ready" in open(out_path).read(), 10, "mosquitto_sub to subscribe")
     sub.send_signal(signal.SIGSTOP)
     pub.publish_all(burst(names, per_channel, 1))
+    cpu_before = cpu_seconds(sub.pid)
     start = time.perf_counter()
     sub.send_signal(signal.SIGCONT)
-    sub.wait(timeout=600)
+    _, _, usage = os.wait4(sub.pid, 0)  # its CPU time, which a wait() would not give
     elapsed = time.perf_counter() - start
+    sub.returncode = 0
+    cpu = usage.ru_utime + usage.ru_stime - cpu_before
     pub.stop()
     with open(out_path) as f:
         received = sum(1 for line in f if line.startswith("{"))
     if received != n:
         raise RuntimeError(f"mosquitto_sub received {received} of {n}")
-    return n / elapsed
+    return n / elapsed, 1e6 * cpu / n
 
 
 def run_daemon(binary, broker, mode, names, per_channel, workers, latency_channels,
@@ -306,11 +323,13 @@ def run_daemon(binary, broker, mode, names, per_channel, workers, latency_channe
         wait_until(lambda: settled(scrape(metrics_port)) >= len(names), 300, "priming")
         daemon.send_signal(signal.SIGSTOP)
         pub.publish_all(burst(names, per_channel, 1))
+        cpu_before = cpu_seconds(daemon.pid)
         start = time.perf_counter()
         daemon.send_signal(signal.SIGCONT)
         total = len(names) + n
         wait_until(lambda: settled(scrape(metrics_port)) >= total, 600, "the burst")
         elapsed = time.perf_counter() - start
+        result["cpu_us_per_msg"] = 1e6 * (cpu_seconds(daemon.pid) - cpu_before) / n
         m = scrape(metrics_port)
         result["ingest_per_s"] = n / elapsed
         result["received"] = m["nightjar_samples_received_total"]
@@ -423,12 +442,13 @@ def main():
                 names = [f"c{i:05d}" for i in range(channels)]
                 per_channel = max(1, args.messages // channels)
                 baseline_drain(broker, names, per_channel, workdir)  # warm-up, discarded
-                bases, loads = [], []
+                bases, base_cpus, loads = [], [], []
                 runs = {mode: [] for mode in args.modes}
                 for rnd in range(args.repeat):
                     loads.append(os.getloadavg()[0])
-                    base = baseline_drain(broker, names, per_channel, workdir)
+                    base, base_cpu = baseline_drain(broker, names, per_channel, workdir)
                     bases.append(base)
+                    base_cpus.append(base_cpu)
                     line = (f"{channels} channels round {rnd + 1}/{args.repeat} (load "
                             f"{loads[-1]:.2f}): mosquitto_sub {base:,.0f} msg/s")
                     for mode in args.modes:
@@ -437,12 +457,16 @@ def main():
                                        args.latency_channels if mode != "lstm_train" else 0,
                                        args.step_wait_ms, workdir)
                         r["ratio"] = r["ingest_per_s"] / base
+                        r["cpu_ratio"] = r["cpu_us_per_msg"] / base_cpu
                         runs[mode].append(r)
-                        line += f"; {mode} {r['ratio']:.2f}x (dropped {r['dropped']:.0f})"
+                        line += (f"; {mode} {r['ratio']:.2f}x, CPU/msg {r['cpu_ratio']:.2f}x "
+                                 f"(dropped {r['dropped']:.0f})")
                     print(line, flush=True)
                 print(f"{channels} channels, {channels * per_channel} messages: mosquitto_sub "
                       f"median {statistics.median(bases):,.0f} msg/s (range "
-                      f"{min(bases):,.0f}..{max(bases):,.0f})", flush=True)
+                      f"{min(bases):,.0f}..{max(bases):,.0f}), CPU "
+                      f"{statistics.median(base_cpus):.2f} us/msg (range "
+                      f"{min(base_cpus):.2f}..{max(base_cpus):.2f})", flush=True)
                 for mode in args.modes:
                     rs = runs[mode]
                     ratios = [r["ratio"] for r in rs]
@@ -456,13 +480,22 @@ def main():
                         "ingest_ratio": ratios,
                         "ingest_ratio_median": statistics.median(ratios),
                         "ingest_ratio_min": min(ratios), "ingest_ratio_max": max(ratios),
+                        "baseline_cpu_us_per_msg": base_cpus,
+                        "cpu_us_per_msg": [r["cpu_us_per_msg"] for r in rs],
+                        "cpu_ratio": [r["cpu_ratio"] for r in rs],
+                        "cpu_ratio_median": statistics.median(r["cpu_ratio"] for r in rs),
+                        "cpu_ratio_min": min(r["cpu_ratio"] for r in rs),
+                        "cpu_ratio_max": max(r["cpu_ratio"] for r in rs),
                         "dropped": sum(r["dropped"] for r in rs),
                         "rejected": sum(r["rejected"] for r in rs),
                     }
                     line = (f"  {mode:10s} median {summary['ingest_median_per_s']:,.0f} msg/s; "
                             f"ratio to mosquitto_sub median {summary['ingest_ratio_median']:.2f} "
                             f"(range {summary['ingest_ratio_min']:.2f}.."
-                            f"{summary['ingest_ratio_max']:.2f}); dropped "
+                            f"{summary['ingest_ratio_max']:.2f}); CPU per message "
+                            f"{summary['cpu_ratio_median']:.2f} x mosquitto_sub's (range "
+                            f"{summary['cpu_ratio_min']:.2f}..{summary['cpu_ratio_max']:.2f}); "
+                            f"dropped "
                             f"{summary['dropped']:.0f}, rejected {summary['rejected']:.0f}")
                     trials = [r for r in rs if "alert_s" in r]
                     if trials:
