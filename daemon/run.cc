@@ -13,8 +13,11 @@
 // Signals: the handlers only set flags; a 100 ms tick acts on them. SIGTERM or SIGINT
 // stops: intake closed, queues drained, status "offline" published, disconnect, exit 0.
 // SIGHUP reloads FILE: if it has errors they are logged and the running config stays;
-// otherwise channels whose options did not change keep what they learnt (mqtt: and
-// daemon: changes apply at the next start). Under systemd (Type=notify): READY=1 once
+// otherwise channels whose options did not change keep what they learnt, a channel whose
+// options changed clears its active alarms and learns again, and a changed
+// mqtt.subscriptions is applied at once (subscribe, unsubscribe, new topic mappings);
+// other mqtt: and daemon: keys apply at the next start (one warning naming them, and the
+// status topic's "restart_pending"). Under systemd (Type=notify): READY=1 once
 // connected and subscribed, WATCHDOG=1 on the tick when a watchdog is set, STATUS= lines,
 // STOPPING=1 on stop. With daemon.metrics_listen set, OpenMetrics text is served at
 // http://HOST:PORT/metrics (lib/service/metrics_server.h); a port in use is a start-up error.
@@ -204,15 +207,17 @@ int RunDaemon(const RunFlags& flags) {
     std::this_thread::sleep_for(kTick);
     if (reload_requested.exchange(false)) {
       spdlog::info("SIGHUP: reloading {}", flags.config);
-      std::shared_ptr<const config::LoadedConfig> next = LoadForRun(flags.config, broker, nullptr);
+      service::ServiceOptions next_options;
+      std::shared_ptr<const config::LoadedConfig> next =
+          LoadForRun(flags.config, broker, &next_options);
       if (!next) {
         rt.NoteReloadFailure();
         spdlog::error("reload refused: {} has errors; the running config stays", flags.config);
       } else {
-        rt.Reload(next);
+        rt.Reload(next, next_options);
         spdlog::info(
             "reloaded {}: channels with unchanged options keep what they learnt; "
-            "mqtt: and daemon: changes apply at the next start",
+            "mqtt.subscriptions applied now, other mqtt: and daemon: keys at the next start",
             flags.config);
       }
     }

@@ -107,6 +107,10 @@ Value DefaultServiceValue(const ServiceKeySpec& key);
 Value DefaultSubscriptionValue(const SubscriptionKeySpec& key);
 // Whether every mqtt: and daemon: key, subscriptions included, has the same value.
 bool SameServiceConfig(const ServiceConfig& a, const ServiceConfig& b);
+// The key paths whose values differ between `a` and `b`, in key-table order
+// ("mqtt.keepalive_s", ...); any difference in the subscription list is the one path
+// "mqtt.subscriptions". Empty exactly when SameServiceConfig(a, b).
+std::vector<std::string> ChangedServiceKeys(const ServiceConfig& a, const ServiceConfig& b);
 
 // Writes `value` (its alternative must match key.type(); asserted) into `config`.
 void SetServiceValue(const ServiceKeySpec& key, const Value& value, ServiceConfig& config);

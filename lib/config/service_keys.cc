@@ -1,3 +1,4 @@
+#include <algorithm>
 #include <array>
 #include <cassert>
 #include <limits>
@@ -233,6 +234,37 @@ Value DefaultServiceValue(const ServiceKeySpec& key) {
 Value DefaultSubscriptionValue(const SubscriptionKeySpec& key) {
   SubscriptionConfig entry;
   return Value(*key.field(entry));
+}
+
+std::vector<std::string> ChangedServiceKeys(const ServiceConfig& a, const ServiceConfig& b) {
+  ServiceConfig x = a;
+  ServiceConfig y = b;
+  std::vector<std::string> changed;
+  bool subscriptions_listed = false;
+  const auto note_subscriptions = [&] {
+    if (!subscriptions_listed) changed.emplace_back("mqtt.subscriptions");
+    subscriptions_listed = true;
+  };
+  for (const ServiceKeySpec& key : kServiceKeys) {
+    const auto value = [&key](ServiceConfig& c) {
+      return std::visit([](auto* field) { return Value(*field); }, key.field(c));
+    };
+    if (FormatValue(value(x)) != FormatValue(value(y))) changed.emplace_back(key.path);
+    // The list sits after the other mqtt: keys in the table's (struct) order.
+    if (key.path == "mqtt.reply_topic" &&
+        !(x.mqtt.subscriptions.size() == y.mqtt.subscriptions.size() &&
+          std::equal(x.mqtt.subscriptions.begin(), x.mqtt.subscriptions.end(),
+                     y.mqtt.subscriptions.begin(),
+                     [](SubscriptionConfig& p, SubscriptionConfig& q) {
+                       for (const SubscriptionKeySpec& sub : kSubscriptionKeys) {
+                         if (*sub.field(p) != *sub.field(q)) return false;
+                       }
+                       return true;
+                     }))) {
+      note_subscriptions();
+    }
+  }
+  return changed;
 }
 
 bool SameServiceConfig(const ServiceConfig& a, const ServiceConfig& b) {

@@ -121,8 +121,11 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   const bool after_gap =
       has_last_time_ && period_.known() &&
       ToSeconds(time - last_time_) > options_.sensor.gap_periods * period_.period_s();
-  // A gap nobody noticed yet (no clock tick in between) is raised now, late but not lost.
-  if (after_gap) CheckGap(time, out);
+  // A gap nobody noticed yet (no clock tick in between) is raised now, late but not lost;
+  // not when the hole is nightjar's own (NoteDiscontinuity).
+  const bool own_hole = resume_after_.has_value();
+  resume_after_.reset();
+  if (after_gap && !own_hole) CheckGap(time, out);
   has_last_time_ = true;
   last_time_ = time;
   period_.Add(time);
@@ -326,6 +329,13 @@ void ChannelPipeline::UpdateAnomalyAlarm(const ResidualReading& reading, const C
 
 void ChannelPipeline::CheckGap(TimestampUs now, std::vector<Alert>& out) {
   if (!has_last_time_ || !period_.known() || alarm(AlarmCondition::kGap).active()) return;
+  if (resume_after_) {  // silence since nightjar's own hole (NoteDiscontinuity)
+    if (*resume_after_ == Discontinuity::kDropped) return;
+    if (!resume_clock_) resume_clock_ = now;
+    if (ToSeconds(now - *resume_clock_) <= options_.sensor.gap_periods * period_.period_s()) {
+      return;
+    }
+  }
   if (!health_.GapPresent(now, period_.period_s())) return;
   Context context{now, kNaN, kNaN, kNaN};
   UpdateSensorAlarm(AlarmCondition::kGap, true, context, out);

@@ -8,6 +8,7 @@
 
 #include <array>
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -42,6 +43,12 @@ const char* AlarmConditionName(AlarmCondition condition);
 // Parses the names above; false if unknown.
 bool ParseAlarmCondition(std::string_view name, AlarmCondition* condition);
 
+// Why a channel's stream has a hole that nightjar made, not the sensor.
+enum class Discontinuity {
+  kRestart,  // nightjar was not running: the channel comes from a checkpoint
+  kDropped,  // samples were dropped before they reached the engine (a full queue)
+};
+
 struct ChannelStatus {
   ChannelState state = ChannelState::kLearning;
   std::int64_t samples = 0;       // samples offered, accepted or not
@@ -70,6 +77,17 @@ class ChannelPipeline {
 
   // Raises the gap alarm when no sample has come for too long by `now`.
   void CheckGap(TimestampUs now, std::vector<Alert>& out);
+
+  // The hole before the next sample is nightjar's own (see Discontinuity): that sample
+  // raises no gap alarm however late it is, and restarts the sequence (recurrent state,
+  // increment, template windows) when the hole is longer than the gap limit, as after a
+  // gap. Until then, after kRestart the silence is measured from the first clock seen
+  // after this call (a sensor that died while nightjar was down still raises its gap);
+  // after kDropped no gap is raised (the silence may be nightjar's own drops).
+  void NoteDiscontinuity(Discontinuity reason) {
+    resume_after_ = reason;
+    resume_clock_.reset();
+  }
 
   Status Acknowledge(AlarmCondition condition, TimestampUs now);
   Status Shelve(AlarmCondition condition, TimestampUs now, TimestampUs until);
@@ -134,6 +152,8 @@ class ChannelPipeline {
   ChannelStatus counters_;
   ResidualTap* tap_ = nullptr;
   std::uint32_t tap_id_ = 0;
+  std::optional<Discontinuity> resume_after_;  // NoteDiscontinuity, until the next sample
+  std::optional<TimestampUs> resume_clock_;    // first CheckGap clock after a kRestart
 };
 
 }  // namespace nightjar::core

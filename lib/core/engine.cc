@@ -1,6 +1,7 @@
 #include "core/engine.h"
 
 #include <algorithm>
+#include <limits>
 #include <utility>
 
 namespace nightjar::core {
@@ -64,8 +65,45 @@ Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options) {
   EnsureWorkspace(options);
   channels_[channel] =
       std::make_unique<ChannelPipeline>(name, options, ChannelSeed(options_.seed, name));
+  channels_[channel]->set_residual_tap(tap_, channel);
   options_of_[channel] = options;
   return Status::Ok();
+}
+
+Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options, TimestampUs now,
+                            std::string_view why, std::vector<Alert>& out) {
+  if (channel >= channels_.size()) return Status::NotFound("no channel with that id");
+  if (Status valid = ValidateChannelOptions(options); !valid.ok()) {
+    return Status::InvalidArgument("channel '" + channels_[channel]->name() +
+                                   "': " + valid.message());
+  }
+  const ChannelPipeline& old = *channels_[channel];
+  const ChannelOptions& was = options_of_[channel];
+  const ChannelStatus status = old.status();
+  constexpr Detector kSensorDetector[kAlarmConditionCount] = {
+      Detector::kCusum, Detector::kNotFinite, Detector::kRange, Detector::kFlatline,
+      Detector::kGap};
+  for (int i = 0; i < kAlarmConditionCount; ++i) {
+    const auto condition = static_cast<AlarmCondition>(i);
+    if (!old.alarm(condition).active()) continue;
+    const bool anomaly = condition == AlarmCondition::kAnomaly;
+    Alert alert;
+    alert.time = now;
+    alert.channel = old.name();
+    alert.kind = anomaly ? AlertKind::kAnomaly : AlertKind::kSensor;
+    alert.detector = anomaly ? status.last_detector : kSensorDetector[i];
+    alert.phase = AlertPhase::kClear;
+    alert.value = status.last_value;
+    alert.expected = anomaly ? status.last_expected : std::numeric_limits<double>::quiet_NaN();
+    alert.z = anomaly ? status.last_z : std::numeric_limits<double>::quiet_NaN();
+    alert.statistic = std::numeric_limits<double>::quiet_NaN();  // the new pipeline has none
+    alert.threshold = std::numeric_limits<double>::quiet_NaN();
+    alert.priority = anomaly ? was.anomaly_priority : was.sensor_priority;
+    alert.message = old.name() + ": " + AlarmConditionName(condition) + " alarm cleared: ";
+    alert.message.append(why);
+    out.push_back(std::move(alert));
+  }
+  return ResetChannel(channel, options);
 }
 
 void Engine::EnsureWorkspace(const ChannelOptions& options) {
@@ -113,6 +151,10 @@ void Engine::Process(ChannelId channel, TimestampUs time, double value, std::vec
   channels_[channel]->Process(time, value, designer_, *workspace_, out);
 }
 
+void Engine::NoteDiscontinuity(ChannelId channel, Discontinuity reason) {
+  if (channel < channels_.size()) channels_[channel]->NoteDiscontinuity(reason);
+}
+
 void Engine::AdvanceClock(TimestampUs now, std::vector<Alert>& out) {
   if (clock_started_ && now <= clock_) return;
   clock_started_ = true;
@@ -139,12 +181,17 @@ Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> 
     return decoded;
   }
   EnsureWorkspace(options);
+  restored->NoteDiscontinuity(Discontinuity::kRestart);
   if (const std::optional<ChannelId> id = FindChannel(name)) {
+    restored->set_residual_tap(tap_, *id);
     channels_[*id] = std::move(restored);
+    options_of_[*id] = options;
     return Status::Ok();
   }
   const auto id = static_cast<ChannelId>(channels_.size());
+  restored->set_residual_tap(tap_, id);
   channels_.push_back(std::move(restored));
+  options_of_.push_back(options);  // channel_options(id) must hold for a loaded channel too
   ids_.emplace(std::string(name), id);
   return Status::Ok();
 }

@@ -59,6 +59,12 @@ class Engine {
   // by the daemon every tick; Process() calls it when sample time moves on by a second.
   void AdvanceClock(TimestampUs now, std::vector<Alert>& out);
 
+  // The hole before `channel`'s next sample is nightjar's own, not the sensor's: no gap
+  // alarm for it (ChannelPipeline::NoteDiscontinuity says exactly what happens). The
+  // daemon calls it for samples dropped at a full queue; LoadChannel calls it itself
+  // with kRestart. An unknown id is ignored.
+  void NoteDiscontinuity(ChannelId channel, Discontinuity reason);
+
   // For a config reload: channels created from now on get `options` and `resolver`;
   // existing channels keep their pipelines (and what they learnt) until ResetChannel().
   void Reconfigure(EngineOptions options, ChannelOptionsResolver resolver);
@@ -66,6 +72,12 @@ class Engine {
   // would): it learns again from scratch. InvalidArgument naming the key when `options`
   // are invalid; the channel is unchanged then.
   Status ResetChannel(ChannelId channel, const ChannelOptions& options);
+  // The same, and first appends to `out` a clear dated `now` for every alarm of the channel
+  // that is active (its raise is out; the new pipeline knows nothing of it), whose message
+  // ends with `why` (e.g. "channel reset by a config reload"), so no subscriber keeps a
+  // stale raise. Nothing is appended when `options` are invalid.
+  Status ResetChannel(ChannelId channel, const ChannelOptions& options, TimestampUs now,
+                      std::string_view why, std::vector<Alert>& out);
   // The options the channel was created with.
   const ChannelOptions& channel_options(ChannelId id) const { return options_of_[id]; }
 
@@ -80,7 +92,11 @@ class Engine {
   // `out`. LoadChannel restores channel `name` from a checkpoint under the options the
   // resolver gives now: creates the channel if it does not exist, else replaces its
   // state. On failure (*problem says why) the engine is unchanged: the channel, if it
-  // exists, keeps its state, and a new one starts fresh on its first sample.
+  // exists, keeps its state, and a new one starts fresh on its first sample. A restored
+  // channel's next sample follows nightjar's own downtime (NoteDiscontinuity kRestart):
+  // however late it comes it raises no gap alarm, and a hole longer than the gap limit
+  // restarts the sequence as after a gap; a sample that follows on at once continues bit
+  // for bit.
   void SaveChannel(ChannelId id, std::vector<std::uint8_t>& out) const;
   Status LoadChannel(std::string_view name, std::span<const std::uint8_t> bytes,
                      StateProblem* problem = nullptr);

@@ -84,6 +84,9 @@ class MessageBus {
   // now if connected and again after every connect. Subscribing to a filter twice updates
   // its QoS. InvalidArgument names the filter when it is malformed.
   virtual core::Status Subscribe(std::string_view filter, int qos) = 0;
+  // Stops subscribing to a filter given to Subscribe() (now if connected, and not again
+  // after a connect). A filter that is not subscribed is OK (nothing to do).
+  virtual core::Status Unsubscribe(std::string_view filter) = 0;
 
   virtual bool IsConnected() const = 0;
   virtual BusStats stats() const = 0;

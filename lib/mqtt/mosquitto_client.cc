@@ -169,6 +169,14 @@ core::Status MosquittoClient::Setup() {
       !s.ok()) {
     return s;
   }
+  // Alerts are small messages that must go out at once: with Nagle's algorithm a publish
+  // right after another one (an alert after the state, a PUBACK) waits for the peer's
+  // delayed ACK, 40 ms on Linux.
+  if (core::Status s = internal::MosquittoStatus(
+          mosquitto_int_option(mosq_, MOSQ_OPT_TCP_NODELAY, 1), "tcp_nodelay");
+      !s.ok()) {
+    return s;
+  }
   if (options_.username) {
     const char* password = options_.password ? options_.password->c_str() : nullptr;
     if (core::Status s = internal::MosquittoStatus(
@@ -432,6 +440,19 @@ core::Status MosquittoClient::Subscribe(std::string_view filter, int qos) {
   }
   if (rc == MOSQ_ERR_NO_CONN) return core::Status::Ok();  // lost just now; sent on reconnect
   return internal::MosquittoStatus(rc, "subscription filter '" + it->filter + "'");
+}
+
+core::Status MosquittoClient::Unsubscribe(std::string_view filter) {
+  std::lock_guard lock(mutex_);
+  const auto it = std::find_if(subscriptions_.begin(), subscriptions_.end(),
+                               [filter](const Subscription& s) { return s.filter == filter; });
+  if (it == subscriptions_.end()) return core::Status::Ok();
+  const std::string name = it->filter;
+  subscriptions_.erase(it);
+  if (!connected_ || stopping_ || stopped_) return core::Status::Ok();  // not renewed on connect
+  const int rc = mosquitto_unsubscribe(mosq_, nullptr, name.c_str());
+  if (rc == MOSQ_ERR_SUCCESS || rc == MOSQ_ERR_NO_CONN) return core::Status::Ok();
+  return internal::MosquittoStatus(rc, "unsubscribing from '" + name + "'");
 }
 
 bool MosquittoClient::IsConnected() const {

@@ -29,6 +29,10 @@
 // order of publishes is kept across a reconnect. QoS 0 publishes while disconnected are
 // dropped and counted (QoS 0 promises nothing).
 //
+// Latency: the socket has TCP_NODELAY (MOSQ_OPT_TCP_NODELAY), so a small publish is sent
+// at once rather than held by Nagle's algorithm until the broker's delayed ACK. The broker
+// should do the same towards its subscribers (mosquitto: `set_tcp_nodelay true`).
+//
 // Retained messages: with skip_retained (the default) messages the broker marks retained
 // — stored values it replays when a subscription is made — are counted and not passed
 // to the handler: a retained sample is an old value that would get a new arrival time.
@@ -154,6 +158,7 @@ class MosquittoClient final : public MessageBus {
   core::Status Publish(std::string_view topic, std::string_view payload, int qos,
                        bool retain) override;
   core::Status Subscribe(std::string_view filter, int qos) override;
+  core::Status Unsubscribe(std::string_view filter) override;
   bool IsConnected() const override;
   BusStats stats() const override;
 

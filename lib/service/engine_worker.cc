@@ -50,7 +50,26 @@ WorkerCounters EngineWorker::counters() const {
   c.channels_kept = kept_.load(std::memory_order_relaxed);
   c.channels_reset = reset_.load(std::memory_order_relaxed);
   c.checkpoints = checkpoints_.load(std::memory_order_relaxed);
+  c.holes = holes_.load(std::memory_order_relaxed);
   return c;
+}
+
+bool EngineWorker::Offer(SampleItem&& sample) {
+  const auto hole = open_holes_.empty() ? open_holes_.end() : open_holes_.find(sample.channel);
+  if (queue_.TryPush(std::move(sample))) {
+    if (hole != open_holes_.end()) open_holes_.erase(hole);
+    return true;
+  }
+  if (hole == open_holes_.end()) {  // the first drop of this hole: mark where it starts
+    open_holes_.insert(sample.channel);
+    holes_.fetch_add(1, std::memory_order_relaxed);
+    queue_.PushMarker(SampleItem{.channel = std::move(sample.channel),
+                                 .time = sample.time,
+                                 .value = 0.0,
+                                 .arrived = sample.arrived,
+                                 .hole = true});
+  }
+  return false;
 }
 
 void EngineWorker::Run() {
@@ -58,8 +77,7 @@ void EngineWorker::Run() {
   std::vector<ControlItem> controls;
   bool stopping = false;
   state_.LoadAtStart(engine_);
-  views_.resize(engine_.channel_count());
-  channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+  TrackChannels(state_.loads_from_save_dir());
   while (!stopping) {
     queue_.PopAll(kSweepPeriod, samples, controls);
     const core::TimestampUs now = clock_();
@@ -67,7 +85,7 @@ void EngineWorker::Run() {
       if (const auto* command = std::get_if<CommandItem>(&control)) {
         HandleCommand(*command, now);
       } else if (const auto* reload = std::get_if<ReloadItem>(&control)) {
-        HandleReload(*reload);
+        HandleReload(*reload, now);
       } else if (std::holds_alternative<CheckpointItem>(control)) {
         Checkpoint("interval");
       } else {
@@ -85,9 +103,15 @@ void EngineWorker::Run() {
   Checkpoint("stop");
 }
 
+void EngineWorker::TrackChannels(bool saved) {
+  views_.resize(engine_.channel_count());
+  unsaved_.resize(engine_.channel_count(), saved ? 0 : 1);
+  channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+}
+
 void EngineWorker::Checkpoint(std::string_view why) {
   if (!state_.saves()) return;
-  state_.Save(engine_, why);
+  state_.Save(engine_, why, &unsaved_);
   checkpoints_.fetch_add(1, std::memory_order_relaxed);
 }
 
@@ -96,12 +120,28 @@ core::TimestampUs EngineWorker::EngineNow(core::TimestampUs wall) const {
   return newest_time_ + std::max<core::TimestampUs>(0, wall - newest_wall_);
 }
 
+void EngineWorker::HandleHole(const SampleItem& marker) {
+  const std::optional<core::ChannelId> id = engine_.FindChannel(marker.channel);
+  if (id) engine_.NoteDiscontinuity(*id, core::Discontinuity::kDropped);
+  const std::uint64_t n = ++holes_logged_;
+  // Powers of two only: under a lasting overload every channel has holes.
+  if ((n & (n - 1)) == 0) {
+    spdlog::warn(
+        "worker {}: samples of {} dropped at a full queue ({} such holes so far): not a "
+        "sensor gap, no gap alarm for it",
+        index_, marker.channel, n);
+  }
+}
+
 void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now) {
+  if (sample.hole) {
+    HandleHole(sample);
+    return;
+  }
   std::optional<core::ChannelId> id = engine_.FindChannel(sample.channel);
   if (!id && state_.LoadNewChannel(engine_, sample.channel)) {
     id = engine_.FindChannel(sample.channel);
-    views_.resize(engine_.channel_count());
-    channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+    TrackChannels(state_.loads_from_save_dir());
   }
   if (!id) {
     core::Result<core::ChannelId> added = engine_.AddChannel(sample.channel);
@@ -115,8 +155,7 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
       return;
     }
     id = *added;
-    views_.resize(engine_.channel_count());
-    channels_.store(engine_.channel_count(), std::memory_order_relaxed);
+    TrackChannels(false);
   }
   engine_.Process(*id, sample.time, sample.value, alerts_);
   samples_.fetch_add(1, std::memory_order_relaxed);
@@ -125,6 +164,7 @@ void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now)
     newest_time_ = sample.time;
     newest_wall_ = now;
   }
+  unsaved_[*id] = 1;
   ChannelView& view = views_[*id];
   view.last_sample = view.sampled ? std::max(view.last_sample, sample.time) : sample.time;
   view.sampled = true;
@@ -164,13 +204,13 @@ void EngineWorker::HandleCommand(const CommandItem& item, core::TimestampUs now)
       bus_.Publish(topics_.reply_topic, CommandReplyJson(item.parsed, result), topics_.qos, false);
   if (!published.ok()) spdlog::warn("reply not published: {}", published.message());
   PublishAlerts();
-  if (const std::optional<core::ChannelId> id = engine_.FindChannel(command.channel);
-      id && views_[*id].sampled) {
-    MaybePublishState(*id, now, true);
+  if (const std::optional<core::ChannelId> id = engine_.FindChannel(command.channel)) {
+    unsaved_[*id] = 1;  // an acknowledge or shelve is part of its checkpoint
+    if (views_[*id].sampled) MaybePublishState(*id, now, true);
   }
 }
 
-void EngineWorker::HandleReload(const ReloadItem& item) {
+void EngineWorker::HandleReload(const ReloadItem& item, core::TimestampUs now) {
   config_ = item.config;
   std::uint64_t kept = 0;
   std::uint64_t reset = 0;
@@ -180,7 +220,10 @@ void EngineWorker::HandleReload(const ReloadItem& item) {
       ++kept;
       continue;
     }
-    if (const core::Status s = engine_.ResetChannel(id, options); !s.ok()) {
+    if (const core::Status s =
+            engine_.ResetChannel(id, options, EngineNow(now),
+                                 "channel reset by a config reload (its options changed)", alerts_);
+        !s.ok()) {
       spdlog::error("reload: {} keeps its old options: {}", engine_.channel_name(id), s.message());
       ++kept;
       continue;
@@ -188,14 +231,21 @@ void EngineWorker::HandleReload(const ReloadItem& item) {
     ++reset;
     spdlog::info("reload: {} has new options and learns again", engine_.channel_name(id));
     views_[id].dirty = true;
+    unsaved_[id] = 1;
   }
   engine_.Reconfigure(config_->engine, config_->Resolver());
+  PublishAlerts();  // the clears of reset channels, before anything they learn anew
   kept_.fetch_add(kept, std::memory_order_relaxed);
   reset_.fetch_add(reset, std::memory_order_relaxed);
 }
 
 void EngineWorker::PublishAlerts() {
   for (const core::Alert& alert : alerts_) {
+    // An alert is an alarm edge, so the channel's checkpoint changed (a gap raised by the
+    // clock comes without a sample).
+    if (const std::optional<core::ChannelId> id = engine_.FindChannel(alert.channel)) {
+      unsaved_[*id] = 1;
+    }
     ChannelTopic(topics_.alert_prefix, alert.channel, &topic_);
     payload_.clear();
     core::AppendAlertJson(alert, &payload_);

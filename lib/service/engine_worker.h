@@ -2,8 +2,13 @@
 //
 // The network thread Offer()s samples (never blocking: a full queue refuses them and the
 // caller counts the drop) and hands over control items (operator commands, config
-// reloads) that always get through. The worker thread takes everything queued at once,
-// applies control items first, runs the samples through its core::Engine, and publishes:
+// reloads) that always get through. The hole a drop leaves in a channel's stream is
+// nightjar's fault, not the sensor's: the first drop of a hole queues a marker behind the
+// channel's last accepted sample (one per channel until one of its samples is accepted
+// again, so at most one per channel), and the worker, reaching it, tells the engine
+// (core::Discontinuity::kDropped): no gap alarm for that hole. Holes are counted
+// (counters().holes) and logged at a limited rate. The worker thread takes everything queued at
+// once, applies control items first, runs the samples through its core::Engine, and publishes:
 //   alerts    on <alert_prefix>/<channel as topic>, QoS from the config, not retained;
 //   state     retained on <state_prefix>/<channel as topic>, at once when the channel's
 //             state (learning/armed/in_alarm/stale) changes, otherwise at most every
@@ -20,8 +25,10 @@
 //
 // Reload: each existing channel whose resolved options are unchanged keeps its pipeline
 // and what it learnt; a channel whose options changed starts learning again with the new
-// ones (its open alarms end without a clear; its state goes back to learning). New
-// channels get the new config.
+// ones: each of its active alarms is cleared first, on the alert topic, with a message
+// saying the channel was reset by a config reload (a dashboard must not keep a raise the
+// new pipeline knows nothing of), and its state goes back to learning. New channels get
+// the new config.
 //
 // Stop: StopAndJoin() lets the thread finish everything already queued, publish the
 // latest state of every channel that changed since its last state message, checkpoint
@@ -29,14 +36,17 @@
 //
 // State (worker_state.h): before its first sample the thread loads the checkpoints of its
 // own channels; a CheckpointItem (queued by the runtime every checkpoint_interval_s)
-// writes all of them. Files are written on this thread, never the network thread: the
-// network thread only TryPush()es, so a slow disk can fill this worker's queue (samples
+// writes those that changed since their last checkpoint (a sample, an alert, a command or
+// a reload reset touched them; a channel loaded from another folder than the state folder
+// counts as changed), and so does the stop. Files are written on this thread, never the network
+// thread: the network thread only TryPush()es, so a slow disk can fill this worker's queue (samples
 // beyond its capacity are dropped and counted, as under any overload) but never blocks
 // intake; and since only this thread touches its channels, a checkpoint sits between two
 // samples, never inside one. A channel loaded from a file publishes its state at its first
 // sample; one reset by a reload is written fresh at the next checkpoint.
 //
-// Thread-safety: Offer, PushControl and counters() from any thread; Start and
+// Thread-safety: Offer from one thread at a time (the network thread: the runtime calls
+// it under its handler lock); PushControl and counters() from any thread; Start and
 // StopAndJoin from the owner's thread. The engine and per-channel bookkeeping are touched
 // by the worker thread only. Ownership: owns its engine, queue and thread; borrows the bus,
 // which must outlive StopAndJoin().
@@ -50,6 +60,7 @@
 #include <memory>
 #include <string>
 #include <thread>
+#include <unordered_set>
 #include <variant>
 #include <vector>
 
@@ -69,6 +80,8 @@ struct SampleItem {
   core::TimestampUs time = 0;
   double value = 0.0;
   std::chrono::steady_clock::time_point arrived{};  // at the network thread, for latency
+  // Not a sample but a hole marker: samples of `channel` were dropped here (Offer).
+  bool hole = false;
 };
 struct CommandItem {
   ParsedCommand parsed;  // status OK
@@ -96,6 +109,7 @@ struct WorkerCounters {
   std::uint64_t channels_kept = 0;   // by reloads: channels that kept their state
   std::uint64_t channels_reset = 0;  // by reloads: channels that learn again
   std::uint64_t checkpoints = 0;     // checkpoints written (each covers all channels)
+  std::uint64_t holes = 0;           // holes left in channel streams by dropped samples
 };
 
 class EngineWorker {
@@ -110,8 +124,9 @@ class EngineWorker {
   EngineWorker& operator=(const EngineWorker&) = delete;
 
   void Start();
-  // False when the queue is full (nothing queued).
-  bool Offer(SampleItem sample) { return queue_.TryPush(std::move(sample)); }
+  // False when the queue is full: the sample is dropped (the caller counts it) and, at a
+  // hole's first drop, the hole marker is queued.
+  bool Offer(SampleItem&& sample);
   void PushControl(ControlItem item) { queue_.PushControl(std::move(item)); }
   void StopAndJoin();
 
@@ -135,8 +150,12 @@ class EngineWorker {
 
   void Run();
   void HandleSample(const SampleItem& sample, core::TimestampUs now);
+  void HandleHole(const SampleItem& marker);
+  // Grows the per-channel vectors to the engine's channel count; new ones are unsaved
+  // unless `saved` (loaded from the state folder itself).
+  void TrackChannels(bool saved);
   void HandleCommand(const CommandItem& item, core::TimestampUs now);
-  void HandleReload(const ReloadItem& item);
+  void HandleReload(const ReloadItem& item, core::TimestampUs now);
   void Checkpoint(std::string_view why);
   void PublishAlerts();
   void MaybePublishState(core::ChannelId id, core::TimestampUs now, bool force);
@@ -151,10 +170,20 @@ class EngineWorker {
   WorkQueue<SampleItem, ControlItem> queue_;
   std::thread thread_;
 
+  // Offer's thread only: channels with samples dropped since their last accepted one.
+  struct NameHash {
+    using is_transparent = void;
+    std::size_t operator()(std::string_view name) const {
+      return std::hash<std::string_view>{}(name);
+    }
+  };
+  std::unordered_set<std::string, NameHash, std::equal_to<>> open_holes_;
+
   // Worker thread only:
   std::shared_ptr<const config::LoadedConfig> config_;
   core::Engine engine_;
   std::vector<ChannelView> views_;
+  std::vector<char> unsaved_;  // by ChannelId: changed since its last checkpoint
   std::vector<core::Alert> alerts_;
   std::string topic_;
   std::string payload_;
@@ -172,6 +201,8 @@ class EngineWorker {
   std::atomic<std::uint64_t> kept_{0};
   std::atomic<std::uint64_t> reset_{0};
   std::atomic<std::uint64_t> checkpoints_{0};
+  std::atomic<std::uint64_t> holes_{0};
+  std::uint64_t holes_logged_ = 0;  // worker thread: holes seen by HandleHole
   WorkerMetrics metrics_;
 };
 

@@ -142,6 +142,9 @@ std::string FormatMetrics(const MetricsSnapshot& s) {
   w.Family("nightjar_samples_dropped", MetricType::kCounter,
            "Samples dropped because the owning worker's queue was full");
   w.Counter("nightjar_samples_dropped", {}, s.samples_dropped);
+  w.Family("nightjar_drop_holes", MetricType::kCounter,
+           "Holes dropped samples left in channel streams (nightjar's own: no gap alarm)");
+  w.Counter("nightjar_drop_holes", {}, s.drop_holes);
   w.Family("nightjar_samples_rejected", MetricType::kCounter,
            "Samples of channels that could not be created (bad channel options)");
   w.Counter("nightjar_samples_rejected", {}, s.samples_rejected);

@@ -71,6 +71,7 @@ struct MetricsSnapshot {
   std::uint64_t samples_received = 0;   // samples the intake mapped and parsed
   std::uint64_t samples_processed = 0;  // samples run through an engine
   std::uint64_t samples_dropped = 0;    // refused by a full worker queue
+  std::uint64_t drop_holes = 0;         // holes those drops left in channel streams
   std::uint64_t samples_rejected = 0;   // for channels that could not be created
   std::uint64_t bad_payloads = 0;       // messages whose payload did not parse
   std::uint64_t unmapped = 0;           // messages on topics no subscription maps

@@ -2,6 +2,7 @@
 
 #include <spdlog/spdlog.h>
 
+#include <algorithm>
 #include <chrono>
 
 #include "service/shard.h"
@@ -14,20 +15,12 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
   if (options.workers < 1) return core::Status::InvalidArgument("daemon.workers: must be >= 1");
   std::unique_ptr<Runtime> runtime(new Runtime(std::move(options), bus, std::move(clock)));
   Runtime* self = runtime.get();
-  core::Result<std::unique_ptr<mqtt::SampleIntake>> intake = mqtt::SampleIntake::Create(
-      self->options_.intake, self->clock_,
-      [self](std::string_view channel, core::TimestampUs time, double value) {
-        self->OnSample(channel, time, value);
-      },
-      [](std::string_view, const core::Status& problem, std::uint64_t suppressed) {
-        if (suppressed > 0) {
-          spdlog::warn("{} ({} more like it since the last report)", problem.message(), suppressed);
-        } else {
-          spdlog::warn("{}", problem.message());
-        }
-      });
+  core::Result<std::unique_ptr<mqtt::SampleIntake>> intake =
+      self->MakeIntake(self->options_.intake);
   if (!intake.ok()) return intake.status();
   runtime->intake_ = std::move(intake).value();
+  runtime->config_ = config;
+  runtime->filters_ = runtime->intake_->Filters();
   const WorkerTopics topics{self->options_.alert_prefix, self->options_.state_prefix,
                             self->options_.reply_topic, self->options_.qos,
                             self->options_.publish_interval_s};
@@ -57,6 +50,22 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
   return runtime;
 }
 
+core::Result<std::unique_ptr<mqtt::SampleIntake>> Runtime::MakeIntake(
+    const mqtt::IntakeOptions& options) {
+  return mqtt::SampleIntake::Create(
+      options, clock_,
+      [this](std::string_view channel, core::TimestampUs time, double value) {
+        OnSample(channel, time, value);
+      },
+      [](std::string_view, const core::Status& problem, std::uint64_t suppressed) {
+        if (suppressed > 0) {
+          spdlog::warn("{} ({} more like it since the last report)", problem.message(), suppressed);
+        } else {
+          spdlog::warn("{}", problem.message());
+        }
+      });
+}
+
 Runtime::Runtime(ServiceOptions options, mqtt::MessageBus& bus, Clock clock)
     : options_(std::move(options)),
       bus_(bus),
@@ -69,12 +78,11 @@ Runtime::~Runtime() { Stop(); }
 core::Status Runtime::Start() {
   if (started_) return core::Status::FailedPrecondition("runtime already started");
   started_ = true;
-  for (const auto& [filter, qos] : intake_->Filters()) {
+  for (const auto& [filter, qos] : filters_) {
     if (core::Status s = bus_.Subscribe(filter, qos); !s.ok()) return s;
-    ++filter_count_;
   }
   if (core::Status s = bus_.Subscribe(options_.command_topic, 1); !s.ok()) return s;
-  ++filter_count_;
+  filter_count_.store(filters_.size() + 1);
   // spdlog's registry is built on first use; build it here, before the workers log, so
   // no two threads race to create it (TSan cannot see the guard inside libspdlog.so).
   spdlog::default_logger_raw();
@@ -110,7 +118,7 @@ void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double 
   received_.fetch_add(1, std::memory_order_relaxed);
   EngineWorker& worker = *workers_[ShardFor(channel, workers_.size())];
   if (worker.Offer(
-          SampleItem{std::string(channel), time, value, std::chrono::steady_clock::now()})) {
+          SampleItem{std::string(channel), time, value, std::chrono::steady_clock::now(), false})) {
     return;
   }
   dropped_.fetch_add(1, std::memory_order_relaxed);
@@ -157,10 +165,76 @@ void Runtime::Tick() {
   }
 }
 
-void Runtime::Reload(std::shared_ptr<const config::LoadedConfig> config) {
+void Runtime::Reload(std::shared_ptr<const config::LoadedConfig> config,
+                     const ServiceOptions& next) {
+  const std::vector<std::string> changed =
+      config::ChangedServiceKeys(config_->service, config->service);
+  // The workers get the new channel options before any sample of a new topic can reach
+  // them (control items go ahead of samples).
   for (auto& worker : workers_) worker->PushControl(ReloadItem{config});
+  if (std::find(changed.begin(), changed.end(), "mqtt.subscriptions") != changed.end()) {
+    ApplySubscriptions(next.intake);
+  }
+  // Everything else in mqtt: and daemon: is read once at start (connection, topics the
+  // workers were built with, sizes): compared with the config the daemon started with, so
+  // a change that was undone is no longer pending.
+  std::vector<std::string> pending = config::ChangedServiceKeys(
+      started_config_ ? started_config_->service : config_->service, config->service);
+  std::erase(pending, "mqtt.subscriptions");
+  if (!pending.empty()) {
+    std::string keys;
+    for (const std::string& key : pending) keys.append(keys.empty() ? "" : ", ").append(key);
+    spdlog::warn("reload: mqtt: or daemon: changed; these keys apply at the next start only: {}",
+                 keys);
+  }
+  {
+    const std::lock_guard lock(restart_mutex_);
+    restart_pending_ = std::move(pending);
+  }
+  if (!started_config_) started_config_ = config_;
+  config_ = config;
   reloads_.fetch_add(1, std::memory_order_relaxed);
   status_due_.store(true);
+}
+
+void Runtime::ApplySubscriptions(const mqtt::IntakeOptions& intake_options) {
+  core::Result<std::unique_ptr<mqtt::SampleIntake>> made = MakeIntake(intake_options);
+  if (!made.ok()) {  // BuildServiceOptions compiled the same rules, so not expected
+    spdlog::error("reload: mqtt.subscriptions not applied: {}", made.status().message());
+    return;
+  }
+  std::unique_ptr<mqtt::SampleIntake> next = std::move(made).value();
+  const std::vector<std::pair<std::string, int>> filters = next->Filters();
+  {
+    // No message is being mapped while the intake changes; counters() reads under intake_mutex_.
+    const std::lock_guard handler_lock(handler_mutex_);
+    const std::lock_guard lock(intake_mutex_);
+    const mqtt::IntakeStats old = intake_->stats();
+    retired_bad_payloads_ += old.bad_payloads;
+    retired_unmapped_ += old.unmapped;
+    intake_.swap(next);
+  }
+  const auto has = [](const std::vector<std::pair<std::string, int>>& list,
+                      const std::string& filter) {
+    return std::any_of(list.begin(), list.end(), [&](const auto& f) { return f.first == filter; });
+  };
+  for (const auto& [filter, qos] : filters_) {
+    if (has(filters, filter) || filter == options_.command_topic) continue;
+    if (core::Status s = bus_.Unsubscribe(filter); !s.ok()) {
+      spdlog::warn("reload: {}", s.message());
+    }
+    spdlog::info("reload: unsubscribed from {}", filter);
+  }
+  for (const auto& [filter, qos] : filters) {
+    if (core::Status s = bus_.Subscribe(filter, qos); !s.ok()) {
+      spdlog::error("reload: {}", s.message());
+      continue;
+    }
+    if (!has(filters_, filter)) spdlog::info("reload: subscribed to {} (QoS {})", filter, qos);
+  }
+  filters_ = filters;
+  filter_count_.store(filters_.size() + 1);
+  spdlog::info("reload: mqtt.subscriptions applied ({} topic rules)", intake_options.rules.size());
 }
 
 void Runtime::Stop() {
@@ -186,10 +260,18 @@ StatusCounters Runtime::counters() const {
     c.channels += static_cast<std::int64_t>(w.channels);
     c.samples += w.samples;
     c.alerts += w.alerts;
+    c.drop_holes += w.holes;
   }
-  const mqtt::IntakeStats intake = intake_->stats();
-  c.bad_payloads = intake.bad_payloads;
-  c.unmapped = intake.unmapped;
+  {
+    const std::lock_guard lock(intake_mutex_);
+    const mqtt::IntakeStats intake = intake_->stats();
+    c.bad_payloads = retired_bad_payloads_ + intake.bad_payloads;
+    c.unmapped = retired_unmapped_ + intake.unmapped;
+  }
+  {
+    const std::lock_guard lock(restart_mutex_);
+    c.restart_pending = restart_pending_;
+  }
   c.dropped = dropped_.load(std::memory_order_relaxed);
   c.commands = commands_.load(std::memory_order_relaxed);
   c.reloads = reloads_.load(std::memory_order_relaxed);
@@ -206,6 +288,7 @@ MetricsSnapshot Runtime::metrics() const {
     const WorkerCounters w = worker->counters();
     m.samples_processed += w.samples;
     m.samples_rejected += w.rejected;
+    m.drop_holes += w.holes;
     const WorkerMetrics& wm = worker->metrics();
     wm.latency.AddTo(m.latency);
     for (std::size_t k = 0; k < kAlertKindCount; ++k) {
@@ -215,17 +298,18 @@ MetricsSnapshot Runtime::metrics() const {
       m.channels_by_state[k] += wm.channels_by_state[k].load(std::memory_order_relaxed);
     }
   }
-  const mqtt::IntakeStats intake = intake_->stats();
   m.samples_received = received_.load(std::memory_order_relaxed);
   m.samples_dropped = dropped_.load(std::memory_order_relaxed);
-  m.bad_payloads = intake.bad_payloads;
-  m.unmapped = intake.unmapped;
+  const std::lock_guard lock(intake_mutex_);
+  const mqtt::IntakeStats intake = intake_->stats();
+  m.bad_payloads = retired_bad_payloads_ + intake.bad_payloads;
+  m.unmapped = retired_unmapped_ + intake.unmapped;
   return m;
 }
 
 bool Runtime::ready() const {
   const mqtt::BusStats bus = bus_.stats();
-  return bus.connected && bus.subscribe_acks >= filter_count_;
+  return bus.connected && bus.subscribe_acks >= filter_count_.load();
 }
 
 void Runtime::PublishStatus(std::string_view state, std::string_view reason) {

@@ -19,8 +19,12 @@
 // Stop(): closes the intake (no handler is mid-way once it returns), lets every worker
 // finish what is queued and write its checkpoint, publishes the offline status, then stops the bus
 // (which waits a bounded time for unacknowledged publishes). Reload(): hands an already validated
-// config to every worker (engine_worker.h says what is kept); mqtt: and daemon: changes
-// need a restart.
+// config to every worker (engine_worker.h says what is kept) and applies a changed
+// mqtt.subscriptions at once: a new intake (topic rules, channel templates, payloads)
+// replaces the old one between two messages, new filters are subscribed and filters no
+// rule uses any more unsubscribed. Every other mqtt: and daemon: key is read at start
+// only: a reload that changes one logs one warning naming each such key path, and the
+// status carries them in "restart_pending" until a restart (or until they are changed back).
 //
 // Thread-safety: Create/Start/Tick/Reload/Stop from one owner thread; counters(),
 // metrics() and ready() from any thread. Ownership: owns the intake and workers; borrows the bus,
@@ -66,8 +70,8 @@ class Runtime {
   core::Status Start();
   // Publishes the status when due.
   void Tick();
-  // Applies a validated config to every worker.
-  void Reload(std::shared_ptr<const config::LoadedConfig> config);
+  // Applies a validated config: `next` is BuildServiceOptions() of it.
+  void Reload(std::shared_ptr<const config::LoadedConfig> config, const ServiceOptions& next);
   // Counts a reload refused because the new file was invalid (for the status topic).
   void NoteReloadFailure() { reload_failures_.fetch_add(1, std::memory_order_relaxed); }
   // Idempotent.
@@ -87,17 +91,33 @@ class Runtime {
   // Whether `topic` is one the daemon publishes (status, replies, alerts, state).
   bool IsOwnTopic(std::string_view topic) const;
   void PublishStatus(std::string_view state, std::string_view reason);
+  core::Result<std::unique_ptr<mqtt::SampleIntake>> MakeIntake(const mqtt::IntakeOptions& options);
+  void ApplySubscriptions(const mqtt::IntakeOptions& intake_options);
 
   const ServiceOptions options_;
   mqtt::MessageBus& bus_;
   const Clock clock_;
   const core::TimestampUs started_at_;
+  // Replaced by a reload with both handler_mutex_ and intake_mutex_ held; read by OnMessage
+  // under handler_mutex_ and by counters()/metrics() under intake_mutex_.
   std::unique_ptr<mqtt::SampleIntake> intake_;
   std::vector<std::unique_ptr<EngineWorker>> workers_;
-  std::size_t filter_count_ = 0;
+  std::atomic<std::size_t> filter_count_{0};
+  std::vector<std::pair<std::string, int>> filters_;  // owner thread: the sample filters
 
   std::mutex handler_mutex_;  // held by OnMessage; Stop() takes it to close the intake
   bool accepting_ = false;    // guarded by handler_mutex_
+
+  mutable std::mutex intake_mutex_;
+  std::uint64_t retired_bad_payloads_ = 0;  // guarded by intake_mutex_: of replaced intakes
+  std::uint64_t retired_unmapped_ = 0;      // guarded by intake_mutex_
+
+  // Owner thread: the config in force, and the one the daemon started with (set at the
+  // first reload).
+  std::shared_ptr<const config::LoadedConfig> config_;
+  std::shared_ptr<const config::LoadedConfig> started_config_;
+  mutable std::mutex restart_mutex_;
+  std::vector<std::string> restart_pending_;  // guarded by restart_mutex_
 
   std::mutex drops_mutex_;
   mqtt::BadPayloadLog drops_;  // guarded by drops_mutex_: per-channel drop counts, rate-limited

@@ -49,6 +49,7 @@ std::string StatusJson(std::string_view state, std::string_view reason, core::Ti
   AppendCount("channels", static_cast<std::uint64_t>(c.channels), &out);
   AppendCount("samples", c.samples, &out);
   AppendCount("dropped", c.dropped, &out);
+  AppendCount("drop_holes", c.drop_holes, &out);
   AppendCount("bad_payloads", c.bad_payloads, &out);
   AppendCount("unmapped", c.unmapped, &out);
   AppendCount("alerts", c.alerts, &out);
@@ -57,6 +58,14 @@ std::string StatusJson(std::string_view state, std::string_view reason, core::Ti
   AppendCount("reload_failures", c.reload_failures, &out);
   AppendCount("outbox", c.outbox, &out);
   AppendCount("reconnects", c.reconnects, &out);
+  if (!c.restart_pending.empty()) {
+    out.append(",\"restart_pending\":[");
+    for (std::size_t i = 0; i < c.restart_pending.size(); ++i) {
+      if (i > 0) out.push_back(',');
+      core::AppendJsonString(c.restart_pending[i], &out);
+    }
+    out.push_back(']');
+  }
   out.push_back('}');
   return out;
 }

@@ -7,7 +7,8 @@
 // the channel's latest sample; value, expected, z are from it (null when not finite).
 //
 // Daemon status (retained on the status topic): {"state":"online"|"offline", ...counters};
-// see StatusCounters for the fields, written in that order.
+// see StatusCounters for the fields, written in that order; restart_pending as an array of
+// key path strings, written only when not empty.
 //
 // Thread-safety: pure functions. Ownership: plain values.
 #pragma once
@@ -15,6 +16,7 @@
 #include <cstdint>
 #include <string>
 #include <string_view>
+#include <vector>
 
 #include "core/channel_pipeline.h"
 #include "core/time.h"
@@ -30,6 +32,7 @@ struct StatusCounters {
   std::int64_t channels = 0;          // channels the engines know
   std::uint64_t samples = 0;          // samples processed by the engines
   std::uint64_t dropped = 0;          // samples dropped at a full worker queue
+  std::uint64_t drop_holes = 0;       // holes those drops left in channel streams (no gap alarm)
   std::uint64_t bad_payloads = 0;     // messages whose payload did not parse
   std::uint64_t unmapped = 0;         // messages on topics no subscription maps
   std::uint64_t alerts = 0;           // alerts published (raises and clears)
@@ -38,6 +41,8 @@ struct StatusCounters {
   std::uint64_t reload_failures = 0;  // reloads refused (invalid config)
   std::uint64_t outbox = 0;           // publishes waiting for the broker
   std::uint64_t reconnects = 0;       // broker reconnects
+  // mqtt: and daemon: key paths a reload changed that apply at the next start only.
+  std::vector<std::string> restart_pending;
 };
 
 // {"state":<state>,"reason":<reason or omitted>,"since":<start time>,"updated":<now>, counters}.

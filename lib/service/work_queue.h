@@ -4,6 +4,8 @@
 // `capacity` samples the sample is refused (the caller counts the drop). Control items
 // (operator commands, a config reload, the stop request) go through PushControl(), which
 // always succeeds: there are few of them and losing one would lose an operator's action.
+// PushMarker() queues a sample-stream item beyond the capacity, in order with the samples:
+// the caller bounds how many (EngineWorker queues one hole marker per channel per hole).
 // PopAll() hands the worker everything queued, control items first, in one lock.
 //
 // Thread-safety: any number of producers, one consumer (PopAll). Ownership: owns the
@@ -24,8 +26,9 @@ class WorkQueue {
  public:
   explicit WorkQueue(std::size_t capacity) : capacity_(capacity) {}
 
-  // False (and nothing queued) when `capacity` samples are waiting already.
-  bool TryPush(Sample sample) {
+  // False when `capacity` samples are waiting already: nothing is queued and `sample` is
+  // left as it was (the caller may still read it).
+  bool TryPush(Sample&& sample) {
     {
       const std::lock_guard lock(mutex_);
       if (samples_.size() >= capacity_) return false;
@@ -33,6 +36,15 @@ class WorkQueue {
     }
     ready_.notify_one();
     return true;
+  }
+
+  // Queued after every sample pushed so far, whatever the capacity.
+  void PushMarker(Sample marker) {
+    {
+      const std::lock_guard lock(mutex_);
+      samples_.push_back(std::move(marker));
+    }
+    ready_.notify_one();
   }
 
   void PushControl(Control control) {

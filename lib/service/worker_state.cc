@@ -72,11 +72,17 @@ bool WorkerStateStore::LoadNewChannel(core::Engine& engine, std::string_view cha
   return entry->outcome == state::LoadOutcome::kLoaded;
 }
 
-CheckpointResult WorkerStateStore::Save(const core::Engine& engine, std::string_view why) {
+CheckpointResult WorkerStateStore::Save(const core::Engine& engine, std::string_view why,
+                                        std::vector<char>* unsaved) {
   CheckpointResult result;
   if (!saves()) return result;
   const auto start = std::chrono::steady_clock::now();
   for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
+    const bool flagged = unsaved != nullptr && id < unsaved->size();
+    if (flagged && (*unsaved)[id] == 0) {
+      ++result.unchanged;
+      continue;
+    }
     bytes_.clear();
     engine.SaveChannel(id, bytes_);
     const core::Status written =
@@ -84,6 +90,7 @@ CheckpointResult WorkerStateStore::Save(const core::Engine& engine, std::string_
     if (written.ok()) {
       ++result.written;
       result.bytes += bytes_.size();
+      if (flagged) (*unsaved)[id] = 0;
     } else {
       // The old checkpoint of that channel stays; the next one tries again. One line
       // per checkpoint: a full disk must not write a line per channel.
@@ -92,10 +99,12 @@ CheckpointResult WorkerStateStore::Save(const core::Engine& engine, std::string_
     }
   }
   result.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-  spdlog::info("worker {}: checkpoint ({}): {} channel{} written to {} ({} bytes, {:.1f} ms){}",
-               index_, why, result.written, result.written == 1 ? "" : "s", options_.save_dir,
-               result.bytes, result.seconds * 1e3,
-               result.failed == 0 ? "" : ", " + std::to_string(result.failed) + " failed");
+  spdlog::info(
+      "worker {}: checkpoint ({}): {} channel{} written to {} ({} bytes, {:.1f} ms), {} "
+      "unchanged{}",
+      index_, why, result.written, result.written == 1 ? "" : "s", options_.save_dir, result.bytes,
+      result.seconds * 1e3, result.unchanged,
+      result.failed == 0 ? "" : ", " + std::to_string(result.failed) + " failed");
   return result;
 }
 

@@ -30,6 +30,7 @@ struct WorkerStateOptions {
 
 struct CheckpointResult {
   std::size_t written = 0;
+  std::size_t unchanged = 0;  // not written: unchanged since their last checkpoint
   std::size_t failed = 0;
   std::uint64_t bytes = 0;
   double seconds = 0.0;
@@ -47,9 +48,16 @@ class WorkerStateStore {
   bool LoadNewChannel(core::Engine& engine, std::string_view channel);
   // Writes every channel of `engine` to save_dir (temp file, fsync, rename); one log
   // line (`why`: "interval", "stop"), and one per failed file. Nothing without save_dir.
-  CheckpointResult Save(const core::Engine& engine, std::string_view why);
+  // With `unsaved` (a flag by ChannelId; an id past its end counts as set) only channels
+  // whose flag is set are written, and a written one's flag is cleared: a channel that has
+  // not changed since its last checkpoint has that state on disk already. A failed write
+  // leaves the flag set, so the next checkpoint tries again.
+  CheckpointResult Save(const core::Engine& engine, std::string_view why,
+                        std::vector<char>* unsaved = nullptr);
 
   bool saves() const { return !options_.save_dir.empty(); }
+  // Whether a channel loaded from load_dir is in save_dir as it was loaded (same folder).
+  bool loads_from_save_dir() const { return options_.load_dir == options_.save_dir; }
 
  private:
   bool Owns(std::string_view channel) const;

@@ -30,11 +30,35 @@ raise needs more than one step sample (the detector's own delay), the next is se
 is reported separately. The other channels stay idle meanwhile. Caveat: a raise that comes
 later than --step-wait-ms after its sample is attributed to the next step sample, so the
 alert latency figures are cut off at that window; raise it to see slower raises whole.
+"beyond broker" is, per trial, the alert latency minus the broker's own delivery time of
+the same sample: what nightjar adds on top of one broker round trip.
+
+TCP_NODELAY: nightjar's client always sets it; the bench's broker gets `set_tcp_nodelay
+true` and the paho witness sets it on its socket, so Nagle's algorithm (which holds a small
+write until the peer's delayed ACK, 40 ms on Linux) is off on every hop. --nagle leaves it
+on in the broker and the witness, to show what it costs.
+
+State: the daemon runs with daemon.state_dir "" (no checkpoints), so no run sees another's
+channels.
+
+CPU per message: wall-clock rates on a shared 2-core machine follow the load more than the
+code (the scheduler shares CPU per thread, so a consumer with three busy threads gets more of
+a loaded machine than mosquitto_sub with one, and its "ratio" rises with the load). So each
+drain also takes the consumer's own CPU time (user + system, all threads, from
+/proc/PID/stat and wait4) per message; that ratio does not depend on who else is running.
+nightjar's figure includes its metrics endpoint answering the 20 ms polls.
+
+Repetitions: the machine is shared, so one run says little. Each of --repeat rounds
+measures the mosquitto_sub baseline and then every mode, after one discarded warm-up drain
+(the broker's first burst allocates its queues). Each mode's ratio is taken against the
+baseline of its own round; the report gives the median ratio and its range over the
+rounds, the median rates, and the load average when each round started. Latency trials of
+all rounds are pooled for p50/p99.
 
 Usage:
   /usr/bin/python3 tests/bench/mqtt_ingest_bench.py --binary build/daemon/nightjar \
       [--channels 100 10000] [--messages 200000] [--modes last_value lstm_infer lstm_train]
-      [--latency-channels 200] [--json out.json]
+      [--latency-channels 200] [--repeat 3] [--nagle] [--json out.json]
 """
 import argparse
 import json
@@ -82,12 +106,13 @@ def accepts(port):
 
 
 class Broker:
-    def __init__(self, workdir):
+    def __init__(self, workdir, nodelay=True):
         self.port = free_port()
         conf = os.path.join(workdir, "mosquitto.conf")
         with open(conf, "w") as f:
             f.write(f"listener {self.port} 127.0.0.1\nallow_anonymous true\n"
                     "persistence false\nmax_queued_messages 0\n"
+                    f"set_tcp_nodelay {'true' if nodelay else 'false'}\n"
                     f"log_dest file {workdir}/broker.log\n")
         binary = shutil.which("mosquitto") or "/usr/sbin/mosquitto"
         self.process = subprocess.Popen([binary, "-c", conf], stdout=subprocess.DEVNULL,
@@ -106,6 +131,8 @@ class Witness:
     """A paho client: publishes samples and takes the arrival time of every message on the
     topics it subscribes to (perf_counter, the same clock as the publish times)."""
 
+    NODELAY = True  # set from --nagle in main()
+
     def __init__(self, port, client_id):
         self.client = mqtt.Client(client_id=client_id, clean_session=True)
         self.lock = threading.Lock()
@@ -115,6 +142,8 @@ class Witness:
         self.client.on_subscribe = lambda *a: self.subscribed.set()
         self.client.max_queued_messages_set(0)
         self.client.connect("127.0.0.1", port, keepalive=120)
+        if Witness.NODELAY:  # paho 1.6 leaves Nagle on
+            self.client.socket().setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
         self.client.loop_start()
 
     def _on_message(self, client, userdata, message):
@@ -207,6 +236,10 @@ def nightjar_config(mode, queue_capacity, metrics_port, workers):
         f"  workers: {workers}\n"
         f"  queue_capacity: {queue_capacity}\n"
         f"  metrics_listen: \"127.0.0.1:{metrics_port}\"\n"
+        # No checkpoints: with the default state_dir every run loaded the previous run's
+        # channels (whose sample times are ahead of this run's, so every sample was dropped
+        # as out of order) and wrote them all back on stop.
+        "  state_dir: \"\"\n"
         "  publish_interval_s: 5\n")
 
 
@@ -231,8 +264,15 @@ def settled(m):
             + m.get("nightjar_samples_rejected_total", 0))
 
 
+def cpu_seconds(pid):
+    """user + system CPU time of a running process so far (all its threads)."""
+    with open(f"/proc/{pid}/stat") as f:
+        fields = f.read().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
 def baseline_drain(broker, names, per_channel, workdir):
-    """mosquitto_sub's drain rate of the burst, in messages/s."""
+    """mosquitto_sub's drain of the burst: (messages/s, CPU microseconds per message)."""
     n = len(names) * per_channel
     out_path = os.path.join(workdir, "sub.out")
     pub = Witness(broker.port, "bench-pub-baseline")
@@ -246,16 +286,19 @@ def baseline_drain(broker, names, per_channel, workdir):
     wait_until(lambda: "ready" in open(out_path).read(), 10, "mosquitto_sub to subscribe")
     sub.send_signal(signal.SIGSTOP)
     pub.publish_all(burst(names, per_channel, 1))
+    cpu_before = cpu_seconds(sub.pid)
     start = time.perf_counter()
     sub.send_signal(signal.SIGCONT)
-    sub.wait(timeout=600)
+    _, _, usage = os.wait4(sub.pid, 0)  # its CPU time, which a wait() would not give
     elapsed = time.perf_counter() - start
+    sub.returncode = 0
+    cpu = usage.ru_utime + usage.ru_stime - cpu_before
     pub.stop()
     with open(out_path) as f:
         received = sum(1 for line in f if line.startswith("{"))
     if received != n:
         raise RuntimeError(f"mosquitto_sub received {received} of {n}")
-    return n / elapsed
+    return n / elapsed, 1e6 * cpu / n
 
 
 def run_daemon(binary, broker, mode, names, per_channel, workers, latency_channels,
@@ -280,11 +323,13 @@ def run_daemon(binary, broker, mode, names, per_channel, workers, latency_channe
         wait_until(lambda: settled(scrape(metrics_port)) >= len(names), 300, "priming")
         daemon.send_signal(signal.SIGSTOP)
         pub.publish_all(burst(names, per_channel, 1))
+        cpu_before = cpu_seconds(daemon.pid)
         start = time.perf_counter()
         daemon.send_signal(signal.SIGCONT)
         total = len(names) + n
         wait_until(lambda: settled(scrape(metrics_port)) >= total, 600, "the burst")
         elapsed = time.perf_counter() - start
+        result["cpu_us_per_msg"] = 1e6 * (cpu_seconds(daemon.pid) - cpu_before) / n
         m = scrape(metrics_port)
         result["ingest_per_s"] = n / elapsed
         result["received"] = m["nightjar_samples_received_total"]
@@ -319,7 +364,7 @@ def latency(pub, metrics_port, count, step_wait_ms, settled_before):
                "the latency channels' warm-up")
     pub.subscribe(f"{ALERT_PREFIX}/#")
     pub.subscribe(f"{DATA_PREFIX}/+/flow")
-    alert_latency, broker_latency, samples_needed, missed = [], [], [], 0
+    alert_latency, broker_latency, beyond, samples_needed, missed = [], [], [], [], 0
     for i, name in enumerate(names):
         alert_topic = f"{ALERT_PREFIX}/cw2/{name}/flow"
         raised = None
@@ -338,19 +383,34 @@ def latency(pub, metrics_port, count, step_wait_ms, settled_before):
                 alert_latency.append(raised - sent)
                 if delivered is not None:
                     broker_latency.append(delivered - sent)
+                    beyond.append(raised - delivered)
                 samples_needed.append(extra + 1)
                 break
         if raised is None:
             missed += 1
-    out = {"latency_trials": count, "latency_missed": missed}
-    if alert_latency:
+    return {"latency_trials": count, "latency_missed": missed,
+            "alert_s": alert_latency, "broker_s": broker_latency, "beyond_s": beyond,
+            "step_samples": samples_needed}
+
+
+def latency_summary(trials):
+    """p50/p99 in ms over the pooled trials of every round."""
+    alert = [t for r in trials for t in r["alert_s"]]
+    broker = [t for r in trials for t in r["broker_s"]]
+    beyond = [t for r in trials for t in r["beyond_s"]]
+    steps = [s for r in trials for s in r["step_samples"]]
+    out = {"latency_trials": sum(r["latency_trials"] for r in trials),
+           "latency_missed": sum(r["latency_missed"] for r in trials)}
+    if alert:
         out.update({
-            "alert_p50_ms": 1e3 * percentile(alert_latency, 0.5),
-            "alert_p99_ms": 1e3 * percentile(alert_latency, 0.99),
-            "broker_p50_ms": 1e3 * percentile(broker_latency, 0.5),
-            "broker_p99_ms": 1e3 * percentile(broker_latency, 0.99),
-            "step_samples_median": statistics.median(samples_needed),
-            "step_samples_max": max(samples_needed),
+            "alert_p50_ms": 1e3 * percentile(alert, 0.5),
+            "alert_p99_ms": 1e3 * percentile(alert, 0.99),
+            "broker_p50_ms": 1e3 * percentile(broker, 0.5),
+            "broker_p99_ms": 1e3 * percentile(broker, 0.99),
+            "beyond_broker_p50_ms": 1e3 * percentile(beyond, 0.5),
+            "beyond_broker_p99_ms": 1e3 * percentile(beyond, 0.99),
+            "step_samples_median": statistics.median(steps),
+            "step_samples_max": max(steps),
         })
     return out
 
@@ -366,40 +426,93 @@ def main():
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--latency-channels", type=int, default=200)
     parser.add_argument("--step-wait-ms", type=float, default=50.0)
+    parser.add_argument("--repeat", type=int, default=3,
+                        help="rounds of baseline + every mode; medians and ranges reported")
+    parser.add_argument("--nagle", action="store_true",
+                        help="leave Nagle's algorithm on in the broker and the witness")
     parser.add_argument("--json", help="also write the results here")
     args = parser.parse_args()
+    Witness.NODELAY = not args.nagle
 
     results = []
     with tempfile.TemporaryDirectory(prefix="nightjar-bench-") as workdir:
-        broker = Broker(workdir)
+        broker = Broker(workdir, nodelay=not args.nagle)
         try:
             for channels in args.channels:
                 names = [f"c{i:05d}" for i in range(channels)]
                 per_channel = max(1, args.messages // channels)
-                base = baseline_drain(broker, names, per_channel, workdir)
-                print(f"{channels} channels, {channels * per_channel} messages: "
-                      f"mosquitto_sub {base:,.0f} msg/s", flush=True)
-                for mode in args.modes:
-                    r = run_daemon(args.binary, broker, mode, names, per_channel, args.workers,
-                                   args.latency_channels if mode != "lstm_train" else 0,
-                                   args.step_wait_ms, workdir)
-                    r.update({"channels": channels, "messages": channels * per_channel,
-                              "mode": mode, "baseline_per_s": base,
-                              "ingest_ratio": r["ingest_per_s"] / base})
-                    line = (f"  {mode:10s} {r['ingest_per_s']:,.0f} msg/s = "
-                            f"{r['ingest_ratio']:.2f} x mosquitto_sub; dropped "
-                            f"{r['dropped']:.0f}, rejected {r['rejected']:.0f}")
-                    if "latency_trials" in r:
-                        line += (f"; latency trials {r['latency_trials']}, missed "
-                                 f"{r['latency_missed']}")
-                    if "alert_p50_ms" in r:
-                        line += (f"; publish->alert p50 {r['alert_p50_ms']:.2f} ms, p99 "
-                                 f"{r['alert_p99_ms']:.2f} ms (broker alone p50 "
-                                 f"{r['broker_p50_ms']:.2f}, p99 {r['broker_p99_ms']:.2f}; "
-                                 f"step samples median {r['step_samples_median']}, max "
-                                 f"{r['step_samples_max']})")
+                baseline_drain(broker, names, per_channel, workdir)  # warm-up, discarded
+                bases, base_cpus, loads = [], [], []
+                runs = {mode: [] for mode in args.modes}
+                for rnd in range(args.repeat):
+                    loads.append(os.getloadavg()[0])
+                    base, base_cpu = baseline_drain(broker, names, per_channel, workdir)
+                    bases.append(base)
+                    base_cpus.append(base_cpu)
+                    line = (f"{channels} channels round {rnd + 1}/{args.repeat} (load "
+                            f"{loads[-1]:.2f}): mosquitto_sub {base:,.0f} msg/s")
+                    for mode in args.modes:
+                        r = run_daemon(args.binary, broker, mode, names, per_channel,
+                                       args.workers,
+                                       args.latency_channels if mode != "lstm_train" else 0,
+                                       args.step_wait_ms, workdir)
+                        r["ratio"] = r["ingest_per_s"] / base
+                        r["cpu_ratio"] = r["cpu_us_per_msg"] / base_cpu
+                        runs[mode].append(r)
+                        line += (f"; {mode} {r['ratio']:.2f}x, CPU/msg {r['cpu_ratio']:.2f}x "
+                                 f"(dropped {r['dropped']:.0f})")
                     print(line, flush=True)
-                    results.append(r)
+                print(f"{channels} channels, {channels * per_channel} messages: mosquitto_sub "
+                      f"median {statistics.median(bases):,.0f} msg/s (range "
+                      f"{min(bases):,.0f}..{max(bases):,.0f}), CPU "
+                      f"{statistics.median(base_cpus):.2f} us/msg (range "
+                      f"{min(base_cpus):.2f}..{max(base_cpus):.2f})", flush=True)
+                for mode in args.modes:
+                    rs = runs[mode]
+                    ratios = [r["ratio"] for r in rs]
+                    summary = {
+                        "channels": channels, "messages": channels * per_channel, "mode": mode,
+                        "rounds": len(rs), "load_avg": loads, "nagle": args.nagle,
+                        "baseline_per_s": bases,
+                        "baseline_median_per_s": statistics.median(bases),
+                        "ingest_per_s": [r["ingest_per_s"] for r in rs],
+                        "ingest_median_per_s": statistics.median(r["ingest_per_s"] for r in rs),
+                        "ingest_ratio": ratios,
+                        "ingest_ratio_median": statistics.median(ratios),
+                        "ingest_ratio_min": min(ratios), "ingest_ratio_max": max(ratios),
+                        "baseline_cpu_us_per_msg": base_cpus,
+                        "cpu_us_per_msg": [r["cpu_us_per_msg"] for r in rs],
+                        "cpu_ratio": [r["cpu_ratio"] for r in rs],
+                        "cpu_ratio_median": statistics.median(r["cpu_ratio"] for r in rs),
+                        "cpu_ratio_min": min(r["cpu_ratio"] for r in rs),
+                        "cpu_ratio_max": max(r["cpu_ratio"] for r in rs),
+                        "dropped": sum(r["dropped"] for r in rs),
+                        "rejected": sum(r["rejected"] for r in rs),
+                    }
+                    line = (f"  {mode:10s} median {summary['ingest_median_per_s']:,.0f} msg/s; "
+                            f"ratio to mosquitto_sub median {summary['ingest_ratio_median']:.2f} "
+                            f"(range {summary['ingest_ratio_min']:.2f}.."
+                            f"{summary['ingest_ratio_max']:.2f}); CPU per message "
+                            f"{summary['cpu_ratio_median']:.2f} x mosquitto_sub's (range "
+                            f"{summary['cpu_ratio_min']:.2f}..{summary['cpu_ratio_max']:.2f}); "
+                            f"dropped "
+                            f"{summary['dropped']:.0f}, rejected {summary['rejected']:.0f}")
+                    trials = [r for r in rs if "alert_s" in r]
+                    if trials:
+                        lat = latency_summary(trials)
+                        summary.update(lat)
+                        line += (f"; latency trials {lat['latency_trials']}, missed "
+                                 f"{lat['latency_missed']}")
+                        if "alert_p50_ms" in lat:
+                            line += (f"; publish->alert p50 {lat['alert_p50_ms']:.2f} ms, p99 "
+                                     f"{lat['alert_p99_ms']:.2f} ms; broker alone p50 "
+                                     f"{lat['broker_p50_ms']:.2f}, p99 {lat['broker_p99_ms']:.2f}; "
+                                     f"beyond broker p50 {lat['beyond_broker_p50_ms']:.2f}, p99 "
+                                     f"{lat['beyond_broker_p99_ms']:.2f} (step samples median "
+                                     f"{lat['step_samples_median']}, max "
+                                     f"{lat['step_samples_max']})")
+                    print(line, flush=True)
+                    results.append(summary)
         finally:
             broker.stop()
     if args.json:

@@ -8,6 +8,7 @@
 
 #include <string>
 #include <string_view>
+#include <vector>
 
 #include "config/config.h"
 
@@ -172,6 +173,32 @@ TEST(ServiceConfigTest, SameServiceConfigSeesEveryKeyAndSubscription) {
   other.mqtt.subscriptions[0].line = 99;  // where it was written does not matter
   other.mqtt.subscriptions[0].time_unit = one.mqtt.subscriptions[0].time_unit;
   EXPECT_TRUE(SameServiceConfig(one, other));
+}
+
+// What a reload compares: every key by its path, the subscription list as one path.
+TEST(ServiceConfigTest, ChangedServiceKeysNamesEachChangedKeyPath) {
+  const ServiceConfig base;
+  EXPECT_TRUE(ChangedServiceKeys(base, base).empty());
+  for (const ServiceKeySpec& key : ServiceKeys()) {
+    ServiceConfig changed = base;
+    const Value v = DefaultServiceValue(key);
+    Value other = v;
+    if (const auto* s = std::get_if<std::string>(&v)) other = *s + "x";
+    if (const auto* b = std::get_if<bool>(&v)) other = !*b;
+    if (const auto* i = std::get_if<int>(&v)) other = *i + 1;
+    if (const auto* d = std::get_if<double>(&v)) other = *d + 1.0;
+    SetServiceValue(key, other, changed);
+    EXPECT_EQ(ChangedServiceKeys(base, changed), std::vector<std::string>{std::string(key.path)});
+  }
+  ServiceConfig two = base;
+  two.mqtt.keepalive_s = 7;
+  two.daemon.workers = 4;
+  two.mqtt.subscriptions.push_back(SubscriptionConfig{});
+  EXPECT_EQ(ChangedServiceKeys(base, two),
+            (std::vector<std::string>{"mqtt.keepalive_s", "mqtt.subscriptions", "daemon.workers"}));
+  ServiceConfig moved = two;
+  moved.mqtt.subscriptions[0].line = 40;  // where it was written does not matter
+  EXPECT_TRUE(ChangedServiceKeys(two, moved).empty());
 }
 
 TEST(ServiceConfigTest, ReferenceYamlListsEveryServiceKey) {

@@ -110,6 +110,12 @@ class FakeBus final : public mqtt::MessageBus {
     return core::Status::Ok();
   }
 
+  core::Status Unsubscribe(std::string_view filter) override {
+    std::lock_guard lock(mutex_);
+    std::erase_if(subscriptions_, [filter](const Subscribed& s) { return s.filter == filter; });
+    return core::Status::Ok();
+  }
+
   bool IsConnected() const override {
     std::lock_guard lock(mutex_);
     return connected_;

@@ -7,6 +7,7 @@
 // channel with 1 sample cannot be armed unless its state was loaded (common practice:
 // the engine arms only after warmup_samples, engine_options.h).
 #include <gtest/gtest.h>
+#include <sys/stat.h>
 
 #include <chrono>
 #include <filesystem>
@@ -15,6 +16,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 #include <thread>
+#include <vector>
 
 #include "config/config.h"
 #include "core/engine.h"
@@ -150,6 +152,49 @@ TEST(RuntimeStateTest, StopCheckpointsEveryChannelAndARestartIsArmedAtItsFirstSa
     EXPECT_EQ(state["samples"], 301) << topic << ": the sample count goes on from the file";
   }
   EXPECT_EQ(d->runtime->counters().channels, 3);
+}
+
+// A checkpoint writes only the channels that changed since their last one: after a
+// restart from the same folder, a stop rewrites the one channel that had a sample and
+// leaves the other files alone (each write is temp file + rename, so a rewritten file has
+// a new inode).
+TEST(RuntimeStateTest, AStopRewritesOnlyTheChannelsThatChanged) {
+  testing::TempDir dir;
+  const std::string state_dir = dir.File("state");
+  const auto config = Load(Config(state_dir));
+  ASSERT_TRUE(config);
+  {
+    auto d = StartDaemon(config);
+    ASSERT_TRUE(d);
+    Feed(*d, 0, 300);
+    ASSERT_TRUE(
+        WaitFor([&] { return d->runtime->counters().samples == 900; }, std::chrono::seconds(20)));
+    d->runtime->Stop();
+  }
+  const auto inode = [&](const char* channel) -> ino_t {
+    struct stat st {};
+    return ::stat(FileOf(state_dir, channel).c_str(), &st) == 0 ? st.st_ino : 0;
+  };
+  std::vector<ino_t> before;
+  for (const char* channel : kChannels) {
+    before.push_back(inode(channel));
+    ASSERT_NE(before.back(), 0u) << channel;
+  }
+
+  auto d = StartDaemon(config);
+  ASSERT_TRUE(d);
+  ASSERT_TRUE(d->bus.Deliver(kTopics[0], Sample(300)));
+  ASSERT_TRUE(
+      WaitFor([&] { return d->runtime->counters().samples == 1; }, std::chrono::seconds(20)));
+  d->runtime->Stop();
+  EXPECT_NE(inode(kChannels[0]), before[0]) << "the channel with a sample is written";
+  EXPECT_EQ(inode(kChannels[1]), before[1]) << "unchanged since it was loaded";
+  EXPECT_EQ(inode(kChannels[2]), before[2]) << "unchanged since it was loaded";
+  core::Engine engine(config->engine, config->Resolver());
+  const state::LoadReport report = state::LoadEngineState(engine, state_dir);
+  EXPECT_EQ(report.loaded(), 3u);
+  EXPECT_EQ(engine.channel_status(*engine.FindChannel(kChannels[0])).samples, 301);
+  EXPECT_EQ(engine.channel_status(*engine.FindChannel(kChannels[1])).samples, 300);
 }
 
 TEST(RuntimeStateTest, CheckpointsOnTheIntervalWhileRunning) {
@@ -299,7 +344,10 @@ TEST(RuntimeStateTest, AChannelResetByAReloadIsCheckpointedFresh) {
   // A longer warm-up for every channel: all of them learn again.
   const auto changed = Load(Config(state_dir, 300.0, 400));
   ASSERT_TRUE(changed);
-  d->runtime->Reload(changed);
+  const core::Result<ServiceOptions> next =
+      BuildServiceOptions(*changed, "test.yaml", std::nullopt);
+  ASSERT_TRUE(next.ok()) << next.status().message();
+  d->runtime->Reload(changed, *next);
   Feed(*d, 300, 310);
   ASSERT_TRUE(
       WaitFor([&] { return d->runtime->counters().samples == 930; }, std::chrono::seconds(20)));

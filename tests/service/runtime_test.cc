@@ -218,6 +218,81 @@ TEST(RuntimeTest, FullQueueDropsAndCountsWithoutBlockingTheNetworkThread) {
   EXPECT_EQ(rt.counters().dropped, 84u);
 }
 
+// The hole that dropped samples leave in a channel's stream is nightjar's own: no gap
+// alarm for it, one hole counted on the status and the metrics. The same silence with no
+// drop behind it is a gap (gap_periods 3 on a 1 s channel: no sample for more than 3 s;
+// the gap rule is the engine's, common practice for telemetry staleness).
+TEST(RuntimeTest, SamplesDroppedAtAFullQueueRaiseNoGapAndAreCountedAsAHole) {
+  std::string text = kConfig;
+  text.replace(text.find("gap_periods: 100000"), std::string("gap_periods: 100000").size(),
+               "gap_periods: 3");
+  text.replace(text.find("  workers: 3"), std::string("  workers: 3").size(),
+               "  workers: 1\n  queue_capacity: 16");
+  const auto config = Load(text);
+  ASSERT_TRUE(config);
+  core::Result<ServiceOptions> options = BuildServiceOptions(*config, "test.yaml", std::nullopt);
+  ASSERT_TRUE(options.ok()) << options.status().message();
+
+  // Holds the worker thread in its clock while the test thread overfills the queue.
+  const std::thread::id test_thread = std::this_thread::get_id();
+  std::mutex mutex;
+  std::condition_variable changed;
+  bool held = false;
+  bool release = false;
+  const Runtime::Clock clock = [&]() -> core::TimestampUs {
+    if (std::this_thread::get_id() != test_thread) {
+      std::unique_lock lock(mutex);
+      held = true;
+      changed.notify_all();
+      changed.wait(lock, [&] { return release; });
+    }
+    return Now();
+  };
+  testing::FakeBus bus;
+  auto runtime = Runtime::Create(*options, config, bus, clock);
+  ASSERT_TRUE(runtime.ok()) << runtime.status().message();
+  Runtime& rt = **runtime;
+  ASSERT_TRUE(rt.Start().ok());
+  {
+    std::unique_lock lock(mutex);
+    ASSERT_TRUE(changed.wait_for(lock, std::chrono::seconds(10), [&] { return held; }));
+  }
+  // Samples 0..15 fit, 16..99 are dropped: an 85 s hole in the channel's stream.
+  for (int i = 0; i < 100; ++i)
+    ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(i, 50.0 + i % 3)));
+  EXPECT_EQ(rt.counters().dropped, 84u);
+  EXPECT_EQ(rt.counters().drop_holes, 1u) << "one hole, however many samples it lost";
+  {
+    const std::lock_guard lock(mutex);
+    release = true;
+  }
+  changed.notify_all();
+  ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 16; }, std::chrono::seconds(10)));
+  for (int i = 100; i < 105; ++i) ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(i, 50.0)));
+  ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 21; }, std::chrono::seconds(10)));
+
+  const auto gap_raises = [&bus] {
+    int n = 0;
+    for (const auto& m : bus.published()) {
+      if (m.topic.rfind("cw2/alert/", 0) != 0) continue;
+      const Json a = Json::parse(m.payload);
+      n += a["detector"] == "gap" && a["phase"] == "raise" ? 1 : 0;
+    }
+    return n;
+  };
+  EXPECT_EQ(gap_raises(), 0) << "the hole nightjar made is not a sensor gap";
+  const Json status = Json::parse(StatusJson("online", "", 0, Now(), rt.counters()));
+  EXPECT_EQ(status["drop_holes"], 1);
+  EXPECT_EQ(status["dropped"], 84);
+  EXPECT_EQ(rt.metrics().drop_holes, 1u);
+
+  // A silence of 15 s with nothing dropped is the sensor's: raised at the late sample.
+  ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(120, 50.0)));
+  EXPECT_TRUE(WaitFor([&] { return gap_raises() == 1; }, std::chrono::seconds(10)));
+  rt.Stop();
+  EXPECT_EQ(rt.counters().drop_holes, 1u);
+}
+
 TEST(ServiceOptionsTest, ErrorsNameFileLineAndKey) {
   const auto config = Load(
       "mqtt:\n"

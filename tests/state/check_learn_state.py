@@ -9,7 +9,9 @@ the state and checks the output with the standard json module: with the state bo
 channels are armed from the first sample (the step is raised within 20 s, although the
 second half alone is shorter than the warm-up), without it the channels stay learning
 and raise nothing; a flipped byte in one state file is named on stderr, that channel
-starts fresh, the other stays armed and the exit code is 0; a changed hidden size is
+starts fresh, the other stays armed and the exit code is 0; a recording three days after
+the learnt one raises no gap alarm (the time nightjar was not running is not a sensor gap)
+and starts armed; a changed hidden size is
 reported as an options mismatch; a missing state folder exits 1; too short a recording
 for learn warns per channel and exits 0; `learn --state-in` goes on learning from a
 state; `tune --state-in` re-runs the loaded channels armed (the configured setting raises
@@ -37,11 +39,11 @@ def check(condition, what):
     return condition
 
 
-def stamp(second):
-    return "%s%02d:%02d:%02dZ" % (DAY, second // 3600, second // 60 % 60, second % 60)
+def stamp(second, day=DAY):
+    return "%s%02d:%02d:%02dZ" % (day, second // 3600, second // 60 % 60, second % 60)
 
 
-def write_recording(path, first, rows, step=None, seed=3):
+def write_recording(path, first, rows, step=None, seed=3, day=DAY):
     rng = random.Random(seed + first)
     lines = ["timestamp," + ",".join(CHANNELS)]
     for i in range(first, first + rows):
@@ -49,7 +51,7 @@ def write_recording(path, first, rows, step=None, seed=3):
         if step and step[0] <= i - first < step[1]:
             flow += 4.0
         temp = 40 + 0.5 * math.sin(2 * math.pi * i / 900) + rng.gauss(0, 0.05)
-        lines.append("%s,%.3f,%.3f" % (stamp(i), flow, temp))
+        lines.append("%s,%.3f,%.3f" % (stamp(i, day), flow, temp))
     with open(path, "w", encoding="utf-8") as f:
         f.write("\n".join(lines) + "\n")
     return path
@@ -123,6 +125,19 @@ def main():
     first_step = stamp(900 + STEP[0])
     check(raises and first_step <= raises[0]["ts"][:19] + "Z" <= stamp(900 + STEP[0] + 20),
           "step raised within 20 s of %s: %r" % (first_step, raises[:1]))
+
+    # Three days later (nightjar was not running in between): no gap alarm at the first
+    # samples, the channels armed from the start.
+    days_later = write_recording(os.path.join(work, "days_later.csv"), 900, 450,
+                                 day="2026-03-12T")
+    resumed = os.path.join(work, "resumed")
+    code, _, err = run(nightjar, "replay", "--input", days_later, "--config", config, "--out",
+                       resumed, "--state-in", state)
+    check(code == 0, "replay --state-in three days later exit %d: %s" % (code, err))
+    gaps = [a for a in alerts(resumed) if a["detector"] == "gap"]
+    check(not gaps, "no gap alarm after nightjar's own downtime: %r" % gaps[:2])
+    check(set(states(resumed).values()) <= {"armed", "in_alarm"},
+          "armed three days later: %r" % states(resumed))
 
     # A flipped byte: named on stderr, that channel starts fresh, the replay still runs.
     damaged = os.path.join(work, "damaged")
