@@ -112,6 +112,14 @@ const Alarm& ChannelPipeline::alarm(AlarmCondition condition) const {
 void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner& designer,
                               LstmWorkspace<float>& workspace, std::vector<Alert>& out) {
   ++counters_.samples;
+  if (resume_pending_) {
+    resume_pending_ = false;
+    const bool continues =
+        has_last_time_ && time > last_time_ &&
+        (!period_.known() ||
+         ToSeconds(time - last_time_) <= options_.sensor.gap_periods * period_.period_s());
+    if (!continues) RestartTimeline();
+  }
   // Timestamps must increase: the first sample of a timestamp wins, later or earlier
   // duplicates are counted and dropped (DESIGN-NOTES §6).
   if (has_last_time_ && time <= last_time_) {
@@ -294,6 +302,25 @@ void ChannelPipeline::MatchEvents(const Context& context, std::vector<Alert>& ou
   }
 }
 
+void ChannelPipeline::RestartTimeline() {
+  has_last_time_ = false;
+  period_.Restart();
+  health_.RestartTimeline(std::nullopt);
+  predictor_.ResetSequence();
+  has_last_used_ = false;
+  closed_loop_steps_ = 0;
+  for (TemplateMatcher& matcher : matchers_) matcher.Reset();
+}
+
+bool ChannelPipeline::ConcludeKnownGood(ThresholdDesigner& designer) {
+  if (!monitor_.armed() && scaler_.ready() && monitor_.scale_settled()) TryArm(designer);
+  for (Alarm& alarm : alarms_) alarm = Alarm(alarm.timing());
+  monitor_.ResetCharts();
+  closed_loop_steps_ = 0;
+  held_out_ = false;
+  return monitor_.armed();
+}
+
 void ChannelPipeline::TryArm(ThresholdDesigner& designer) {
   if (arm_failed_ || !period_.known()) return;
   Result<Thresholds> thresholds = designer.Design(options_.thresholds, period_.period_s());
@@ -325,6 +352,12 @@ void ChannelPipeline::UpdateAnomalyAlarm(const ResidualReading& reading, const C
 }
 
 void ChannelPipeline::CheckGap(TimestampUs now, std::vector<Alert>& out) {
+  if (resume_pending_ && !resume_clock_set_) {
+    // Silence since the restore is measured from now, not from the saved last sample.
+    health_.RestartTimeline(now);
+    resume_clock_set_ = true;
+    return;
+  }
   if (!has_last_time_ || !period_.known() || alarm(AlarmCondition::kGap).active()) return;
   if (!health_.GapPresent(now, period_.period_s())) return;
   Context context{now, kNaN, kNaN, kNaN};

@@ -71,6 +71,21 @@ class ChannelPipeline {
   // Raises the gap alarm when no sample has come for too long by `now`.
   void CheckGap(TimestampUs now, std::vector<Alert>& out);
 
+  // The channel was just restored from a checkpoint. If its next sample does not simply
+  // continue the saved stream (it comes after more than the gap limit, or earlier than the
+  // last saved sample: a recording replayed on a model learnt from another), that sample
+  // starts a new time line: the time nightjar was not watching is not a sensor gap, so no
+  // gap alarm and no out-of-order drop; the recurrent state and the last increment start
+  // afresh. A sample that continues the stream continues it bit for bit. Until that first
+  // sample, the gap clock runs from the first CheckGap() after the restore.
+  void MarkRestored() { resume_pending_ = true; }
+
+  // The recording just fed was known to be normal (`nightjar learn`): arm now if the
+  // residual scale has settled, even before warmup_samples, and forget every alarm the
+  // recording raised, silently (its departures were normal behaviour by definition).
+  // True when the channel is armed afterwards.
+  bool ConcludeKnownGood(ThresholdDesigner& designer);
+
   Status Acknowledge(AlarmCondition condition, TimestampUs now);
   Status Shelve(AlarmCondition condition, TimestampUs now, TimestampUs until);
   Status Unshelve(AlarmCondition condition, TimestampUs now, std::vector<Alert>& out);
@@ -103,6 +118,8 @@ class ChannelPipeline {
   void UpdateAnomalyAlarm(const ResidualReading& reading, const Context& context,
                           std::vector<Alert>& out);
   void TryArm(ThresholdDesigner& designer);
+  void RestartTimeline();
+
   void EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
                 const ResidualReading* reading, std::vector<Alert>& out);
   void MatchEvents(const Context& context, std::vector<Alert>& out);
@@ -123,8 +140,10 @@ class ChannelPipeline {
 
   bool has_last_used_ = false;
   int closed_loop_steps_ = 0;
-  bool held_out_ = false;   // closed loop ran out: fed measurements until back to normal
-  double last_used_ = 0.0;  // last value the model was fed (the forecast while in alarm)
+  bool held_out_ = false;        // closed loop ran out: fed measurements until back to normal
+  double last_used_ = 0.0;       // last value the model was fed (the forecast while in alarm)
+  bool resume_pending_ = false;  // restored; the next sample decides (MarkRestored)
+  bool resume_clock_set_ = false;
   bool has_last_time_ = false;
   TimestampUs last_time_ = 0;
   bool flatline_check_enabled_ = true;

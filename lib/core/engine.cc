@@ -50,6 +50,14 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
   return id;
 }
 
+std::size_t Engine::ConcludeKnownGood() {
+  std::size_t armed = 0;
+  for (const std::unique_ptr<ChannelPipeline>& channel : channels_) {
+    if (channel->ConcludeKnownGood(designer_)) ++armed;
+  }
+  return armed;
+}
+
 void Engine::Reconfigure(EngineOptions options, ChannelOptionsResolver resolver) {
   options_ = std::move(options);
   resolver_ = std::move(resolver);
@@ -138,6 +146,7 @@ Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> 
   if (Status decoded = DecodeChannelState(bytes, *restored, problem); !decoded.ok()) {
     return decoded;
   }
+  restored->MarkRestored();
   EnsureWorkspace(options);
   if (const std::optional<ChannelId> id = FindChannel(name)) {
     channels_[*id] = std::move(restored);
