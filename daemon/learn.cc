@@ -70,6 +70,8 @@ int RunLearnCommand(const LearnFlags& flags) {
   }
   if (!flags.state_in.empty()) options.on_engine_ready = LoadStateHook("learn", flags.state_in);
   const std::string state_out = flags.state_out;
+  // The recording is known to be good: arm what has learnt enough, forget its alarms.
+  options.on_input_end = [](core::Engine& engine) { engine.ConcludeKnownGood(); };
   options.on_engine_done = [&state_out](const core::Engine& engine) {
     return state::SaveEngineState(engine, state_out);
   };
@@ -118,7 +120,7 @@ int RunLearnCommand(const LearnFlags& flags) {
     if (channel.final_state != core::ChannelState::kLearning) continue;
     std::fprintf(stderr,
                  "nightjar learn: warning: %s is still learning: the recording is too short "
-                 "for its warm-up; it goes on learning from the saved state\n",
+                 "for its residual scale to settle; it goes on learning from the saved state\n",
                  channel.name.c_str());
   }
   return 0;

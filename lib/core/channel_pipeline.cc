@@ -112,6 +112,11 @@ const Alarm& ChannelPipeline::alarm(AlarmCondition condition) const {
 void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner& designer,
                               LstmWorkspace<float>& workspace, std::vector<Alert>& out) {
   ++counters_.samples;
+  // A restored channel whose stream resumes on an earlier clock (a recording replayed on
+  // a model learnt from a later one) starts a new time line rather than dropping samples.
+  if (resume_after_ == Discontinuity::kRestart && has_last_time_ && time <= last_time_) {
+    RestartTimeline();
+  }
   // Timestamps must increase: the first sample of a timestamp wins, later or earlier
   // duplicates are counted and dropped (DESIGN-NOTES §6).
   if (has_last_time_ && time <= last_time_) {
@@ -295,6 +300,25 @@ void ChannelPipeline::MatchEvents(const Context& context, std::vector<Alert>& ou
     alert.phase = AlertPhase::kClear;
     out.push_back(std::move(alert));
   }
+}
+
+void ChannelPipeline::RestartTimeline() {
+  has_last_time_ = false;
+  period_.Restart();
+  health_.RestartTimeline(std::nullopt);
+  predictor_.ResetSequence();
+  has_last_used_ = false;
+  closed_loop_steps_ = 0;
+  for (TemplateMatcher& matcher : matchers_) matcher.Reset();
+}
+
+bool ChannelPipeline::ConcludeKnownGood(ThresholdDesigner& designer) {
+  if (!monitor_.armed() && scaler_.ready() && monitor_.scale_settled()) TryArm(designer);
+  for (Alarm& alarm : alarms_) alarm = Alarm(alarm.timing());
+  monitor_.ResetCharts();
+  closed_loop_steps_ = 0;
+  held_out_ = false;
+  return monitor_.armed();
 }
 
 void ChannelPipeline::TryArm(ThresholdDesigner& designer) {

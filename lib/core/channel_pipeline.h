@@ -89,6 +89,12 @@ class ChannelPipeline {
     resume_clock_.reset();
   }
 
+  // The recording just fed was known to be normal (`nightjar learn`): arm now if the
+  // residual scale has settled, even before warmup_samples, and forget every alarm the
+  // recording raised, silently (its departures were normal behaviour by definition).
+  // True when the channel is armed afterwards.
+  bool ConcludeKnownGood(ThresholdDesigner& designer);
+
   Status Acknowledge(AlarmCondition condition, TimestampUs now);
   Status Shelve(AlarmCondition condition, TimestampUs now, TimestampUs until);
   Status Unshelve(AlarmCondition condition, TimestampUs now, std::vector<Alert>& out);
@@ -121,6 +127,8 @@ class ChannelPipeline {
   void UpdateAnomalyAlarm(const ResidualReading& reading, const Context& context,
                           std::vector<Alert>& out);
   void TryArm(ThresholdDesigner& designer);
+  void RestartTimeline();  // a restored channel's stream resumes on an earlier clock
+
   void EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
                 const ResidualReading* reading, std::vector<Alert>& out);
   void MatchEvents(const Context& context, std::vector<Alert>& out);

@@ -51,6 +51,14 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
   return id;
 }
 
+std::size_t Engine::ConcludeKnownGood() {
+  std::size_t armed = 0;
+  for (const std::unique_ptr<ChannelPipeline>& channel : channels_) {
+    if (channel->ConcludeKnownGood(designer_)) ++armed;
+  }
+  return armed;
+}
+
 void Engine::Reconfigure(EngineOptions options, ChannelOptionsResolver resolver) {
   options_ = std::move(options);
   resolver_ = std::move(resolver);

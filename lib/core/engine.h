@@ -65,6 +65,11 @@ class Engine {
   // with kRestart. An unknown id is ignored.
   void NoteDiscontinuity(ChannelId channel, Discontinuity reason);
 
+  // The input so far was a known-good recording (`nightjar learn`): every channel arms
+  // if its residual scale has settled and forgets the alarms it raised
+  // (ChannelPipeline::ConcludeKnownGood). Returns how many channels are armed.
+  std::size_t ConcludeKnownGood();
+
   // For a config reload: channels created from now on get `options` and `resolver`;
   // existing channels keep their pipelines (and what they learnt) until ResetChannel().
   void Reconfigure(EngineOptions options, ChannelOptionsResolver resolver);

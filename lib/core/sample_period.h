@@ -49,6 +49,8 @@ class SamplePeriod {
   // Records the arrival timestamp of one sample (see the header comment for repeats and
   // backward jumps).
   void Add(TimestampUs t);
+  // Forgets the last timestamp: the next Add() starts a new time line (no interval).
+  void Restart() { last_.reset(); }
 
   // True when period_s() is meaningful: a period was configured or the estimate is frozen.
   bool known() const { return configured_ || estimate_known(); }

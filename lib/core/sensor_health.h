@@ -84,6 +84,9 @@ class SensorHealth {
   // gap_periods is 0, or when period_s is not a positive finite number (period unknown).
   bool GapPresent(TimestampUs now, double period_s) const;
 
+  // Restarts the gap clock at `since` (nullopt: no gap until the next sample arrives).
+  void RestartTimeline(std::optional<TimestampUs> since) { last_sample_time_ = since; }
+
   // Consecutive finite samples in the present flatline run (0 before the first).
   std::int64_t flatline_run() const { return run_length_; }
   // Latest sample timestamp seen; nullopt before the first sample.

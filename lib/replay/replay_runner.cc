@@ -232,6 +232,7 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
     }
   }
 
+  if (outcome.status.ok() && options.on_input_end) options.on_input_end(engine);
   summary.rows = reader.rows_read();
   summary.skipped_rows = reader.skipped_rows();
   summary.out_of_order_rows = reader.out_of_order_rows();

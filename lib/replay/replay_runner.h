@@ -55,6 +55,9 @@ struct ReplayOptions {
   // threads at once, each call with its own engine.
   std::function<core::Status(core::Engine&)> on_engine_ready;
   std::function<core::Status(const core::Engine&)> on_engine_done;
+  // Called once when the input has been read, before the summary is taken (learn uses
+  // it to arm the channels on a known-good recording). Same threading as on_engine_ready.
+  std::function<void(core::Engine&)> on_input_end;
   // Borrowed; when set, every channel reports its charted residuals to it (ChannelId =
   // column index). Not shared between RunReplayJobs workers: use with RunReplay only.
   core::ResidualTap* residual_tap = nullptr;

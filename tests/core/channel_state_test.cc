@@ -206,6 +206,71 @@ TEST(ChannelStateTest, RestoredChannelWithTemplatesContinuesBitForBit) {
   EXPECT_EQ(end_a, end_b);
 }
 
+// A restart hours later, or a recording replayed on a model learnt from another one
+// whose clock starts earlier: the time nightjar was not watching is no sensor gap, and
+// the earlier clock is a new time line, not out-of-order samples (common practice: a
+// stale-data alarm reports the source, not the monitor's own downtime).
+TEST(ChannelStateTest, RestoredChannelStartsANewTimeLineWithoutAGapAlarm) {
+  const std::vector<double> values = Signal(1200);
+  for (const int offset_s : {6 * 3600, -3 * 3600}) {
+    Engine engine(SmallModel());
+    ASSERT_TRUE(engine.LoadChannel(kName, Checkpoint(1000)).ok());
+    const ChannelId id = *engine.FindChannel(kName);
+    ASSERT_NE(engine.channel_status(id).state, ChannelState::kLearning);
+    std::vector<Alert> out;
+    for (int i = 0; i < 200; ++i) {
+      engine.Process(id, At(1000 + i) + offset_s * kMicrosPerSecond,
+                     values[static_cast<std::size_t>(1000 + i)], out);
+    }
+    for (const Alert& alert : out) EXPECT_NE(alert.detector, Detector::kGap) << offset_s;
+    const ChannelStatus status = engine.channel_status(id);
+    EXPECT_EQ(status.out_of_order, 0) << offset_s;
+    EXPECT_NE(status.state, ChannelState::kLearning) << offset_s;
+  }
+}
+
+// After a restore, a channel that never sends again still goes stale: the gap clock runs
+// from the first clock tick after the restore.
+TEST(ChannelStateTest, RestoredChannelThatStaysSilentRaisesTheGap) {
+  Engine engine(SmallModel());
+  ASSERT_TRUE(engine.LoadChannel(kName, Checkpoint(1000)).ok());
+  const ChannelId id = *engine.FindChannel(kName);
+  std::vector<Alert> out;
+  const TimestampUs restart = At(1000) + 3600 * kMicrosPerSecond;
+  engine.AdvanceClock(restart, out);
+  EXPECT_TRUE(out.empty());
+  engine.AdvanceClock(restart + 5 * kMicrosPerSecond, out);
+  EXPECT_TRUE(out.empty()) << "gap limit is 10 periods of 1 s";
+  engine.AdvanceClock(restart + 30 * kMicrosPerSecond, out);
+  ASSERT_EQ(out.size(), 1U);
+  EXPECT_EQ(out[0].detector, Detector::kGap);
+  EXPECT_EQ(engine.channel_status(id).state, ChannelState::kStale);
+}
+
+// learn on a known-good recording shorter than the warm-up arms the channel once the
+// residual scale has settled, and forgets the alarms the recording raised.
+TEST(ChannelStateTest, ConcludeKnownGoodArmsEarlyAndForgetsAlarms) {
+  EngineOptions options = SmallModel();
+  options.defaults.warmup_samples = 5000;
+  Engine engine(options);
+  const ChannelId id = *engine.AddChannel(kName);
+  std::vector<double> values = Signal(1400);  // the +4 step from 1200 is "normal" here
+  std::vector<Alert> out;
+  Feed(engine, id, 0, 1400, values, out);
+  ASSERT_EQ(engine.channel_status(id).state, ChannelState::kLearning);
+  EXPECT_EQ(engine.ConcludeKnownGood(), 1U);
+  EXPECT_EQ(engine.channel_status(id).state, ChannelState::kArmed);
+  for (int c = 0; c < kAlarmConditionCount; ++c) {
+    EXPECT_FALSE(engine.channel(id).alarm(static_cast<AlarmCondition>(c)).active()) << c;
+  }
+  // Too few samples for the scale: stays learning.
+  Engine short_engine(options);
+  const ChannelId short_id = *short_engine.AddChannel(kName);
+  Feed(short_engine, short_id, 0, 60, values, out);
+  EXPECT_EQ(short_engine.ConcludeKnownGood(), 0U);
+  EXPECT_EQ(short_engine.channel_status(short_id).state, ChannelState::kLearning);
+}
+
 TEST(ChannelStateTest, FlippedByteIsCorruptAndChannelStartsFresh) {
   std::vector<std::uint8_t> bytes = Checkpoint(800);
   bytes[bytes.size() / 2] ^= 0x10;

@@ -172,8 +172,16 @@ def main():
                        "--state-in", os.path.join(work, "no_such_state"))
     check(code == 1 and "no_such_state" in err, "missing folder exit %d: %r" % (code, err))
 
+    # Shorter than the warm-up but known good: learn arms it once the residual scale has
+    # settled (Engine::ConcludeKnownGood), without a warning.
+    medium = write_recording(os.path.join(work, "medium.csv"), 0, 400)
+    code, out, err = run(nightjar, "learn", "--input", medium, "--config", config, "--state-out",
+                         os.path.join(work, "medium_state"))
+    check(code == 0 and "still learning" not in err and out.count(" armed ") == 2,
+          "a short known-good recording arms: %d %r %r" % (code, out, err))
+
     # Too short to arm: a warning per channel, still exit 0 and the state written.
-    short = write_recording(os.path.join(work, "short.csv"), 0, 200)
+    short = write_recording(os.path.join(work, "short.csv"), 0, 40)
     code, _, err = run(nightjar, "learn", "--input", short, "--config", config, "--state-out",
                        os.path.join(work, "short_state"))
     check(code == 0 and err.count("still learning") == 2, "short learn warns: %d %r" % (code, err))
