@@ -194,8 +194,7 @@ void PreLearn(core::ResidualMonitor& monitor, const ChannelResidualCache& channe
   for (std::size_t i = 0; i < samples; ++i) {
     if (i == samples / 2) monitor.StartTailWindow();
     const double residual = channel.residuals[i];
-    const bool learn =
-        (channel.flags[i] & kCachedFlatline) == 0 && WithinSigmas(monitor, residual);
+    const bool learn = (channel.flags[i] & kCachedFlatline) == 0 && WithinSigmas(monitor, residual);
     monitor.Observe(residual, learn);
   }
 }
@@ -233,7 +232,7 @@ constexpr std::uint8_t kWithinSigmas = 2;
 // by sample; samples from `first_charted` on are charted.
 struct SharedLearning {
   std::size_t first_charted = 0;  // the sample after the one that armed (0: armed at start)
-  bool armed = false;        // false: the channel never armed, nothing is charted
+  bool armed = false;             // false: the channel never armed, nothing is charted
   double learning_tail = 0.0;
   std::vector<double> abs_z;
   std::vector<double> cusum_input;
