@@ -17,6 +17,10 @@ done
 if grep -q "^./usr/include" "$work/contents.txt"; then echo "package ships headers" >&2; exit 1; fi
 dpkg-deb -f "$deb" Depends | tee "$work/depends.txt"
 grep -q "libmosquitto" "$work/depends.txt" || { echo "Depends lacks libmosquitto" >&2; exit 1; }
-dpkg-deb --ctrl-tarfile "$deb" | tar -t | grep -qx "./conffiles" || { echo "no conffiles" >&2; exit 1; }
-dpkg-deb -I "$deb" conffiles | grep -qx "/etc/nightjar/nightjar.yaml" || { echo "config is not a conffile" >&2; exit 1; }
+# Listings go to files first: under pipefail, `grep -q` quitting at its first match would
+# make the writer die of SIGPIPE and fail the pipeline now and then.
+dpkg-deb --ctrl-tarfile "$deb" | tar -t >"$work/control.txt"
+grep -qx "./conffiles" "$work/control.txt" || { echo "no conffiles" >&2; cat "$work/control.txt" >&2; exit 1; }
+dpkg-deb -I "$deb" conffiles >"$work/conffiles.txt"
+grep -qx "/etc/nightjar/nightjar.yaml" "$work/conffiles.txt" || { echo "config is not a conffile" >&2; exit 1; }
 echo "package ok: $(basename "$deb")"
