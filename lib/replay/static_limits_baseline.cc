@@ -37,6 +37,23 @@ StaticLimitsBaseline::StaticLimitsBaseline(int warmup_samples, double k, core::A
 StaticLimitsBaseline::StaticLimitsBaseline(const core::ChannelOptions& options)
     : StaticLimitsBaseline(options.warmup_samples, kDefaultK, options.anomaly_alarm) {}
 
+double LimitRatio(double deviation, double half_width) {
+  if (half_width > 0.0) return deviation / half_width;
+  return deviation > 0.0 ? std::numeric_limits<double>::infinity() : 0.0;
+}
+
+void UpdateLimitAlarm(core::Alarm& alarm, core::TimestampUs time, const std::string& channel,
+                      double value, double ratio, std::vector<BaselineEdge>& out) {
+  const core::AlarmEdge edge = alarm.Update(time, ratio);
+  if (edge == core::AlarmEdge::kNone) return;
+  out.push_back({.time = time,
+                 .channel = channel,
+                 .phase = edge == core::AlarmEdge::kRaise ? core::AlertPhase::kRaise
+                                                          : core::AlertPhase::kClear,
+                 .value = value,
+                 .ratio = ratio});
+}
+
 std::string StaticLimitsBaseline::name() const {
   char k[32];
   std::snprintf(k, sizeof k, "%g", k_);
@@ -64,21 +81,8 @@ void StaticLimitsBaseline::Process(std::string_view channel_name, core::Timestam
     }
     return;
   }
-  const double deviation = std::abs(value - channel.mean);
-  double ratio = 0.0;
-  if (channel.half_width > 0.0) {
-    ratio = deviation / channel.half_width;
-  } else if (deviation > 0.0) {
-    ratio = std::numeric_limits<double>::infinity();
-  }
-  const core::AlarmEdge edge = channel.alarm.Update(time, ratio);
-  if (edge == core::AlarmEdge::kNone) return;
-  out.push_back({.time = time,
-                 .channel = it->first,
-                 .phase = edge == core::AlarmEdge::kRaise ? core::AlertPhase::kRaise
-                                                          : core::AlertPhase::kClear,
-                 .value = value,
-                 .ratio = ratio});
+  const double ratio = LimitRatio(std::abs(value - channel.mean), channel.half_width);
+  UpdateLimitAlarm(channel.alarm, time, it->first, value, ratio, out);
 }
 
 const StaticLimitsBaseline::Channel* StaticLimitsBaseline::Find(std::string_view channel) const {

@@ -47,6 +47,14 @@ struct BaselineEdge {
   double ratio = 0.0;  // |value - mean| / (k * sigma) at the edge
 };
 
+// Shared by the limit baselines (static and windowed gaussian): the alarm ratio of a
+// deviation from the band's centre, where a band of zero width is crossed by any deviation
+// (an infinite ratio) and by no zero one.
+double LimitRatio(double deviation, double half_width);
+// Feeds `ratio` to the channel's alarm and appends the edge it gives, if any.
+void UpdateLimitAlarm(core::Alarm& alarm, core::TimestampUs time, const std::string& channel,
+                      double value, double ratio, std::vector<BaselineEdge>& out);
+
 // The learnt limits of one channel.
 struct StaticLimits {
   double mean = 0.0;

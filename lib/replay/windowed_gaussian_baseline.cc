@@ -56,23 +56,9 @@ std::optional<double> WindowedGaussianBaseline::Process(std::string_view channel
     double squares = 0.0;
     for (const double x : channel.values) squares += (x - mean) * (x - mean);
     const double sigma = std::sqrt(squares / static_cast<double>(size - 1));
-    const double deviation = std::abs(value - mean);
-    double ratio = 0.0;
-    if (sigma > 0.0) {
-      ratio = deviation / (k_ * sigma);
-    } else if (deviation > 0.0) {
-      ratio = std::numeric_limits<double>::infinity();
-    }
+    const double ratio = LimitRatio(std::abs(value - mean), k_ * sigma);
     judged = ratio;
-    const core::AlarmEdge edge = channel.alarm.Update(time, ratio);
-    if (edge != core::AlarmEdge::kNone) {
-      out.push_back({.time = time,
-                     .channel = it->first,
-                     .phase = edge == core::AlarmEdge::kRaise ? core::AlertPhase::kRaise
-                                                              : core::AlertPhase::kClear,
-                     .value = value,
-                     .ratio = ratio});
-    }
+    UpdateLimitAlarm(channel.alarm, time, it->first, value, ratio, out);
   } else {
     ++channel.filled;
   }
