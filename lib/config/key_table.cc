@@ -97,6 +97,17 @@ const std::array kKeys = {
     KeySpec{"thresholds.spike_limit", NIGHTJAR_FIELD(thresholds.spike_limit), AtLeast(0), "sigma",
             "individual-residual spike limit; 0 derives it from the budget"},
 
+    KeySpec{"resume.hold_samples", NIGHTJAR_FIELD(resume.hold_samples), AtLeast(0), "samples",
+            "after a restart, a gap or a new time line, anomaly alarms wait this long while the "
+            "level is compared with the learnt one; 0 = no wait, no check"},
+    KeySpec{"resume.relearn_beyond_sd", NIGHTJAR_FIELD(resume.relearn_beyond_sd), Above(0),
+            "learnt sd",
+            "a mean level over the wait this far from the learnt mean is a new operating point: "
+            "the channel re-learns"},
+    KeySpec{"resume.relearn_samples", NIGHTJAR_FIELD(resume.relearn_samples), AtLeast(2), "samples",
+            "samples a re-learning channel learns before it arms again (at least "
+            "scaler.warmup_samples)"},
+
     KeySpec{"sensor.min_value", NIGHTJAR_FIELD(sensor.min_value), AnyNumber(), "channel unit",
             "instrument span, low end; below it is out of range; -.inf = no bound"},
     KeySpec{"sensor.max_value", NIGHTJAR_FIELD(sensor.max_value), AnyNumber(), "channel unit",

@@ -154,6 +154,16 @@ AlarmEdge Alarm::TrackCondition(TimestampUs now, double ratio) {
   return AlarmEdge::kClear;
 }
 
+AlarmEdge Alarm::Withdraw(TimestampUs now) {
+  Advance(now);
+  const bool annunciated = active_ && !silenced();
+  active_ = false;
+  condition_since_.reset();
+  clear_since_.reset();
+  annunciated_ = AlarmState::kNormal;
+  return annunciated ? AlarmEdge::kClear : AlarmEdge::kNone;
+}
+
 AlarmEdge Alarm::ExpireShelving(TimestampUs now) {
   if (!shelved_until_ || now < *shelved_until_) return AlarmEdge::kNone;
   shelved_until_.reset();

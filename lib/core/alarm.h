@@ -99,6 +99,12 @@ class Alarm {
   // shelving expiry is checked. Lets a periodic tick end shelving on a silent channel.
   AlarmEdge Tick(TimestampUs now);
 
+  // The condition no longer means anything (the channel re-learns at a new operating
+  // point): it ends now, without the off-delay, and the alarm returns to Normal with
+  // nothing left to acknowledge; shelving, suppression and out-of-service marks stay.
+  // kClear when an annunciated active condition ended, kNone otherwise.
+  AlarmEdge Withdraw(TimestampUs now);
+
   // Operator acknowledgement. Unacknowledged -> Acknowledged, ReturnedUnacknowledged ->
   // Normal. FailedPrecondition, state unchanged, in any other state (nothing to
   // acknowledge, or silenced; a shelving past its end but not yet expired by Update or

@@ -114,9 +114,9 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   ++counters_.samples;
   // A restored channel whose stream resumes on an earlier clock (a recording replayed on
   // a model learnt from a later one) starts a new time line rather than dropping samples.
-  if (resume_after_ == Discontinuity::kRestart && has_last_time_ && time <= last_time_) {
-    RestartTimeline();
-  }
+  const bool new_timeline =
+      resume_after_ == Discontinuity::kRestart && has_last_time_ && time <= last_time_;
+  if (new_timeline) RestartTimeline();
   // Timestamps must increase: the first sample of a timestamp wins, later or earlier
   // duplicates are counted and dropped (DESIGN-NOTES §6).
   if (has_last_time_ && time <= last_time_) {
@@ -131,6 +131,10 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   const bool own_hole = resume_after_.has_value();
   resume_after_.reset();
   if (after_gap && !own_hole) CheckGap(time, out);
+  // The recurrent state restarts (below, or in RestartTimeline) and the plant may be at
+  // another operating point after the silence: hold anomaly alarms and check the level.
+  // A restart that follows on within the gap limit continues as if nothing happened.
+  if (after_gap || new_timeline) BeginResumeHold();
   has_last_time_ = true;
   last_time_ = time;
   period_.Add(time);
@@ -190,7 +194,10 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   // Once the closed-loop hold has run out (held_out_), the alarm is being re-baselined:
   // the residual scale may learn again, or a scale learnt on a quiet spell would pin the
   // alarm for ever.
-  const bool trusted = (!was_in_alarm || held_out_) && !flatline;
+  // Samples in the hold after a resume are not yet known to be normal: nothing is learnt
+  // from them, or a fault present since the resume would teach the residual scale itself.
+  const bool holding = monitor_.armed() && hold_left_ > 0;
+  const bool trusted = (!was_in_alarm || held_out_) && !flatline && !holding;
   const double residual = (value - context.expected) / scaler_.scale();
   const double z_now = residual / monitor_.sigma();
   const bool gate_open =
@@ -207,14 +214,24 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
 
   ResidualTapPoint tapped;
   if (monitor_.armed()) {
-    UpdateAnomalyAlarm(reading, context, out);
+    if (hold_left_ > 0) {
+      tapped.alarm_held = true;
+      hold_levels_.Add(value);
+      ContinueResumeHold(context, out);
+      tapped.relearned = !monitor_.armed();
+      tapped.charts_reset = hold_left_ == 0 && !tapped.relearned;
+    } else {
+      UpdateAnomalyAlarm(reading, context, out);
+    }
   } else {
+    hold_left_ = 0;  // a learning channel raises nothing: there is nothing to hold
     ++learnt_samples_;
-    if (learnt_samples_ == options_.warmup_samples / 2) {
+    const int arm_after = ArmAfterSamples();
+    if (learnt_samples_ == arm_after / 2) {
       monitor_.StartTailWindow();
       tapped.tail_window_started = true;
     }
-    if (learnt_samples_ >= options_.warmup_samples) {
+    if (learnt_samples_ >= arm_after) {
       TryArm(designer);
       tapped.armed = monitor_.armed();
     }
@@ -302,6 +319,64 @@ void ChannelPipeline::MatchEvents(const Context& context, std::vector<Alert>& ou
   }
 }
 
+int ChannelPipeline::ArmAfterSamples() const {
+  return relearning_ ? std::max(options_.resume.relearn_samples, options_.scaler.warmup_samples)
+                     : options_.warmup_samples;
+}
+
+void ChannelPipeline::BeginResumeHold() {
+  hold_left_ = options_.resume.hold_samples;
+  hold_levels_.Reset();
+}
+
+void ChannelPipeline::ContinueResumeHold(const Context& context, std::vector<Alert>& out) {
+  if (--hold_left_ > 0) return;
+  const double off_sd = std::abs(hold_levels_.mean() - scaler_.mean()) / scaler_.scale();
+  if (off_sd > options_.resume.relearn_beyond_sd) {
+    Relearn(context, out);
+    return;
+  }
+  // The charts start afresh: the sums of the recurrent state's start-up transient (and of
+  // a glitch in the hold) would otherwise raise now. A fault present since the resume
+  // raises within the charts' usual delay.
+  monitor_.ResetCharts();
+}
+
+void ChannelPipeline::Relearn(const Context& context, std::vector<Alert>& out) {
+  // An alarm from before the hole goes, and says why.
+  if (alarm_for(AlarmCondition::kAnomaly).Withdraw(context.time) == AlarmEdge::kClear) {
+    Alert alert;
+    alert.time = context.time;
+    alert.channel = name_;
+    alert.kind = AlertKind::kAnomaly;
+    alert.detector = counters_.last_detector;
+    alert.phase = AlertPhase::kClear;
+    alert.value = context.value;
+    alert.expected = context.expected;
+    alert.z = context.z;
+    alert.statistic = kNaN;
+    alert.threshold = kNaN;
+    alert.priority = options_.anomaly_priority;
+    alert.message = name_ +
+                    ": anomaly alarm cleared: " + FormatWithUnit(context.value, options_.unit) +
+                    " is at an operating point the model never learnt; re-learning";
+    out.push_back(std::move(alert));
+  }
+  // The model's weights are kept (the dynamics carry over); the scales it sees its inputs
+  // and residuals through are learnt anew at the new level.
+  scaler_ = InputScaler(options_.scaler);
+  increment_moments_ = RunningMoments();
+  monitor_ = ResidualMonitor(options_.residual);
+  predictor_.ResetSequence();
+  has_last_used_ = false;
+  closed_loop_steps_ = 0;
+  held_out_ = false;
+  learnt_samples_ = 0;
+  relearning_ = true;
+  hold_left_ = 0;
+  ++counters_.relearns;
+}
+
 void ChannelPipeline::RestartTimeline() {
   has_last_time_ = false;
   period_.Restart();
@@ -332,6 +407,7 @@ void ChannelPipeline::TryArm(ThresholdDesigner& designer) {
   }
   monitor_.Arm(*thresholds);
   scaler_.Freeze();
+  relearning_ = false;
 }
 
 void ChannelPipeline::UpdateSensorAlarm(AlarmCondition condition, bool present,
@@ -485,6 +561,7 @@ Status ChannelPipeline::Unshelve(AlarmCondition condition, TimestampUs now,
 
 ChannelStatus ChannelPipeline::status() const {
   ChannelStatus status = counters_;
+  status.relearning = relearning_;
   status.sample_period_s = period_.known() ? period_.period_s() : 0.0;
   if (alarm(AlarmCondition::kGap).active()) {
     status.state = ChannelState::kStale;

@@ -63,6 +63,10 @@ struct ChannelStatus {
   double last_ratio = 0.0;                    // largest chart statistic / threshold (>= 1 signals)
   Detector last_detector = Detector::kCusum;  // the chart giving last_ratio
   double sample_period_s = 0.0;               // 0 until known
+  // Times the channel resumed at an operating point it never learnt and re-learnt
+  // (ResumeOptions); a count an operator should know about.
+  std::int64_t relearns = 0;
+  bool relearning = false;  // re-learning now (state kLearning with a learnt model)
 };
 
 class ChannelPipeline {
@@ -127,6 +131,10 @@ class ChannelPipeline {
   void UpdateAnomalyAlarm(const ResidualReading& reading, const Context& context,
                           std::vector<Alert>& out);
   void TryArm(ThresholdDesigner& designer);
+  int ArmAfterSamples() const;
+  void BeginResumeHold();
+  void ContinueResumeHold(const Context& context, std::vector<Alert>& out);
+  void Relearn(const Context& context, std::vector<Alert>& out);
   void RestartTimeline();  // a restored channel's stream resumes on an earlier clock
 
   void EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
@@ -156,6 +164,11 @@ class ChannelPipeline {
   bool flatline_check_enabled_ = true;
   bool arm_failed_ = false;
   std::int64_t learnt_samples_ = 0;  // accepted samples seen while learning
+  bool relearning_ = false;          // learning again after a new operating point
+  // Resume hold (ResumeOptions): charted samples left, and the levels seen in it. Not
+  // checkpointed: a restart begins a new hold.
+  int hold_left_ = 0;
+  RunningMoments hold_levels_;
   ResidualReading last_reading_;
   ChannelStatus counters_;
   ResidualTap* tap_ = nullptr;

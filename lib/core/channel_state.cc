@@ -211,6 +211,7 @@ class ChannelStateAccess {
     a(p.flatline_check_enabled_);
     a(p.arm_failed_);
     a(p.learnt_samples_);
+    a(p.relearning_);
     a(p.last_reading_.z);
     a(p.last_reading_.ratio);
     a.Enum(p.last_reading_.detector, kDetectorCount);
@@ -390,6 +391,7 @@ class ChannelStateAccess {
     a(s.last_ratio);
     a.Enum(s.last_detector, kDetectorCount);
     a(s.sample_period_s);
+    a(s.relearns);
   }
 };
 

@@ -37,6 +37,12 @@ Status ValidateChannelOptions(const ChannelOptions& options) {
     return Invalid("warmup_samples", "must be >= scaler.warmup_samples (" +
                                          std::to_string(options.scaler.warmup_samples) + ")");
   }
+  if (options.resume.hold_samples < 0) return Invalid("resume.hold_samples", "must be >= 0");
+  if (!(options.resume.relearn_beyond_sd > 0.0) ||
+      !std::isfinite(options.resume.relearn_beyond_sd)) {
+    return Invalid("resume.relearn_beyond_sd", "must be > 0 (standard deviations)");
+  }
+  if (options.resume.relearn_samples < 2) return Invalid("resume.relearn_samples", "must be >= 2");
   if (!(options.scaler.adapt_alpha >= 0.0 && options.scaler.adapt_alpha < 1.0)) {
     return Invalid("scaler.adapt_alpha", "must be in [0, 1)");
   }

@@ -28,6 +28,27 @@ namespace nightjar::core {
 enum class Forecaster { kLstm, kLastValue };
 const char* ForecasterName(Forecaster forecaster);
 
+// What a channel does when its stream resumes after a hole longer than the gap limit (a
+// sensor gap, or nightjar not running) or on a new time line. The recurrent state restarts, and a
+// plant that was stopped may come back at another operating point than the one the model learnt
+// (DESIGN-NOTES §1): anomaly alarms wait while the level is compared with the learnt one.
+struct ResumeOptions {
+  // Samples after the resume during which anomaly alarms wait (the charts start afresh
+  // after them) and the level is averaged; 0 = no wait and no level check. Default 60
+  // (a minute at 1 Hz: long enough for the recurrent state to warm up, which takes a few
+  // tens of samples; common practice).
+  int hold_samples = 60;
+  // An armed channel whose mean level over the hold lies further than this many learnt
+  // standard deviations from the learnt mean has moved to an operating point it never
+  // learnt: it re-learns instead of alarming on every sample. Default 5 (beyond the usual
+  // 3-sigma control limits with margin; common practice).
+  double relearn_beyond_sd = 5.0;
+  // Samples a re-learning channel learns (input scale and residual scale anew; its model
+  // weights are kept) before it arms again, and at least scaler.warmup_samples. Default 512: one
+  // time constant of the default residual-scale average (residual.scale_alpha = 1/512).
+  int relearn_samples = 512;
+};
+
 struct ChannelOptions {
   // Engineering unit shown in messages, e.g. "m3/h". Default empty.
   std::string unit;
@@ -47,6 +68,7 @@ struct ChannelOptions {
   LstmPredictorOptions predictor;
   ResidualMonitorOptions residual;
   ThresholdOptions thresholds;
+  ResumeOptions resume;
   // Flatline check on by default: 600 identical samples (10 min at 1 Hz). A channel that
   // holds its value while learning switches the check off for itself (a setpoint, a
   // quantised or slowly sampled signal), so this rarely needs tuning.

@@ -24,6 +24,15 @@ struct ResidualTapPoint {
   bool tail_window_started = false;  // ResidualMonitor::StartTailWindow was called
   bool armed = false;                // ResidualMonitor::Arm was called
   double sample_period_s = 0.0;      // the period the thresholds were designed for (with armed)
+  // The anomaly alarm was not updated for this sample (armed, in the hold after a resume;
+  // the charts were).
+  bool alarm_held = false;
+  // The hold ended with this sample at the learnt operating point: the charts were zeroed
+  // after it.
+  bool charts_reset = false;
+  // The hold ended at a new operating point: the channel dropped its scales and learns
+  // again (ResumeOptions) from the next sample.
+  bool relearned = false;
 };
 
 class ResidualTap {

@@ -243,6 +243,7 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
     ChannelSummary& channel = summary.channels[i];
     channel.rejected = status.rejected;
     channel.out_of_order = status.out_of_order;
+    channel.relearns = status.relearns;
     channel.sample_period_s = status.sample_period_s;
     channel.final_state = status.state;
     summary.rejected_samples += status.rejected;

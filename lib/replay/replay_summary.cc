@@ -437,6 +437,7 @@ std::string ReportToJson(const ReplayReport& report) {
     json.Field("rejected", channel.rejected);
     json.Field("out_of_order", channel.out_of_order);
     json.Field("sample_period_s", channel.sample_period_s);
+    json.Field("relearns", channel.relearns);
     WriteAlertCounts(json, channel.alerts);
     json.EndObject();
   }

@@ -68,6 +68,8 @@ struct ChannelSummary {
   std::int64_t rejected = 0;      // not finite or out of range: counted, not learnt from
   std::int64_t out_of_order = 0;  // repeated timestamps, dropped by the engine
   double sample_period_s = 0.0;   // the engine's estimate at the end; 0 if unknown
+  // Times it resumed at an operating point it never learnt and re-learnt (ResumeOptions).
+  std::int64_t relearns = 0;
   core::ChannelState final_state = core::ChannelState::kLearning;
   AlertCounts alerts{};
 };

@@ -19,6 +19,9 @@ class Recorder final : public core::ResidualTap {
     std::uint8_t flags = 0;
     if (point.flatline) flags |= kCachedFlatline;
     if (point.tail_window_started) flags |= kCachedTailWindow;
+    if (point.alarm_held) flags |= kCachedAlarmHeld;
+    if (point.charts_reset) flags |= kCachedChartsReset;
+    if (point.relearned) channel.relearned = true;
     if (point.armed) {
       flags |= kCachedArmed;
       channel.armed_period_s = point.sample_period_s;

@@ -29,8 +29,10 @@ namespace nightjar::replay {
 
 // Bits of ChannelResidualCache::flags.
 inline constexpr std::uint8_t kCachedFlatline = 1;
-inline constexpr std::uint8_t kCachedTailWindow = 2;  // StartTailWindow after this sample
-inline constexpr std::uint8_t kCachedArmed = 4;       // Arm after this sample
+inline constexpr std::uint8_t kCachedTailWindow = 2;    // StartTailWindow after this sample
+inline constexpr std::uint8_t kCachedArmed = 4;         // Arm after this sample
+inline constexpr std::uint8_t kCachedAlarmHeld = 8;     // armed, alarm not updated (resume hold)
+inline constexpr std::uint8_t kCachedChartsReset = 16;  // charts zeroed after this sample
 
 struct ChannelResidualCache {
   std::string name;
@@ -44,6 +46,9 @@ struct ChannelResidualCache {
   bool armed_at_start = false;
   // Anomaly raises of the base run, in time order.
   std::vector<core::TimestampUs> base_anomaly_raises;
+  // The channel re-learnt at a new operating point during the run (ResumeOptions); the
+  // sweep does not re-run that and keeps such a channel at its configured setting.
+  bool relearned = false;
 };
 
 struct ResidualCache {

@@ -131,7 +131,7 @@ struct Gate {
 };
 
 inline bool Trusts(const core::Alarm& alarm, bool held_out, std::uint8_t flags) {
-  return (!alarm.active() || held_out) && (flags & kCachedFlatline) == 0;
+  return (!alarm.active() || held_out) && (flags & (kCachedFlatline | kCachedAlarmHeld)) == 0;
 }
 
 inline bool WithinSigmas(const core::ResidualMonitor& monitor, double residual) {
@@ -160,12 +160,15 @@ inline Gate Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
   gate.open = Trusts(lane.alarm, lane.held_out, flags) && gate.within_sigmas;
   const core::ResidualReading reading = monitor.Observe(residual, gate.open);
   if (monitor.armed()) {
-    const core::AlarmEdge edge = lane.alarm.Update(time, reading.ratio);
-    if (edge == core::AlarmEdge::kRaise) {
-      lane.raises.push_back(time);
-    } else if (edge == core::AlarmEdge::kClear) {
-      monitor.ResetCharts();
+    if ((flags & kCachedAlarmHeld) == 0) {
+      const core::AlarmEdge edge = lane.alarm.Update(time, reading.ratio);
+      if (edge == core::AlarmEdge::kRaise) {
+        lane.raises.push_back(time);
+      } else if (edge == core::AlarmEdge::kClear) {
+        monitor.ResetCharts();
+      }
     }
+    if ((flags & kCachedChartsReset) != 0) monitor.ResetCharts();
   } else {
     if ((flags & kCachedTailWindow) != 0) monitor.StartTailWindow();
     if ((flags & kCachedArmed) != 0) {
@@ -194,7 +197,8 @@ void PreLearn(core::ResidualMonitor& monitor, const ChannelResidualCache& channe
   for (std::size_t i = 0; i < samples; ++i) {
     if (i == samples / 2) monitor.StartTailWindow();
     const double residual = channel.residuals[i];
-    const bool learn = (channel.flags[i] & kCachedFlatline) == 0 && WithinSigmas(monitor, residual);
+    const bool learn = (channel.flags[i] & (kCachedFlatline | kCachedAlarmHeld)) == 0 &&
+                       WithinSigmas(monitor, residual);
     monitor.Observe(residual, learn);
   }
 }
@@ -455,8 +459,10 @@ inline void ChartStep(ChartLane& lane, const ChannelResidualCache& channel,
   }
   lane.charts.Add(cusum_input[i], ewma_input[i]);
   // Inactive with nothing pending, a ratio below 1 (or NaN) changes nothing in the
-  // alarm but the time it has seen last (the cache's times increase): skip it.
-  if (!lane.quiet || !lane.charts.SurelyBelowOne(abs_z[i])) {
+  // alarm but the time it has seen last (the cache's times increase): skip it. In the
+  // hold after a resume the pipeline does not update the alarm at all.
+  if ((flags[i] & kCachedAlarmHeld) == 0 &&
+      (!lane.quiet || !lane.charts.SurelyBelowOne(abs_z[i]))) {
     const double ratio = lane.charts.ratio(abs_z[i]);
     if (!lane.quiet || ratio >= 1.0) {
       const core::AlarmEdge edge = lane.alarm.Update(times[i], ratio);
@@ -468,6 +474,7 @@ inline void ChartStep(ChartLane& lane, const ChannelResidualCache& channel,
       lane.quiet = !lane.alarm.active() && !lane.alarm.condition_since().has_value();
     }
   }
+  if ((flags[i] & kCachedChartsReset) != 0) lane.charts.Reset();
   if (!lane.departed) {
     Bookkeep(true, lane.alarm.active(), abs_z[i], lane.held_out, lane.closed_loop_steps);
   }
@@ -629,11 +636,17 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
     std::vector<std::vector<std::optional<core::ChannelOptions>>> valid(end - begin);
     std::vector<SharedLearning> learned(end - begin);
     parallel(end - begin, [&](std::size_t w, core::ThresholdDesigner& designer) {
+      if (cache.channels[begin + w].relearned) return;  // kept at its configured setting
       valid[w] = ValidOptions(cache.channels[begin + w], candidates[begin + w].settings);
       learned[w] = Learn(cache.channels[begin + w], valid[w], designer);
     });
     std::vector<Task> tasks;
     for (std::size_t w = 0; w < end - begin; ++w) {
+      if (cache.channels[begin + w].relearned) {
+        Candidates& mine = candidates[begin + w];
+        mine.raises[mine.base] = cache.channels[begin + w].base_anomaly_raises;
+        continue;
+      }
       const std::size_t total = candidates[begin + w].settings.size();
       evaluations += static_cast<std::int64_t>(total);
       for (std::size_t first = 0; first < total; first += kLanesPerTask) {
@@ -779,6 +792,11 @@ core::Result<SweepResult> RunSweep(const ResidualCache& cache, const SweepOption
                       " anomaly raises/day; least sensitive setting: " +
                       Fixed(choice.chosen_raises_per_day, 1) + "/day (base setting " +
                       Fixed(choice.base_raises_per_day, 1) + "/day)";
+    }
+    if (cache.channels[c].relearned) {
+      choice.reason =
+          "kept its configured setting: it re-learnt at a new operating point "
+          "during the recording, which the sweep does not re-run";
     }
   }
   return result;

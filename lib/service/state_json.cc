@@ -32,6 +32,9 @@ void ChannelStateJson(std::string_view channel, const core::ChannelStatus& statu
   out->append(",\"z\":");
   core::AppendJsonNumber(status.last_z, out);
   AppendCount("samples", static_cast<std::uint64_t>(status.samples), out);
+  // Learning again at an operating point the model never learnt (ResumeOptions).
+  if (status.relearning) out->append(",\"relearning\":true");
+  AppendCount("relearns", static_cast<std::uint64_t>(status.relearns), out);
   out->push_back('}');
 }
 

@@ -43,17 +43,18 @@ std::size_t RowsIn(std::string_view section) {
 TEST(KeyTableTest, HasOneRowPerChannelOptionsField) {
   // If one of these counts changes, a field was added or removed: add or remove its row in
   // lib/config/key_table.cc (and its line in config/nightjar.yaml), then update the count.
-  EXPECT_EQ(CountFields<core::ChannelOptions>(), 16u);
-  EXPECT_EQ(RowsIn(""), 16u - 7u);  // 7 members are sections (two alarm timings)
+  EXPECT_EQ(CountFields<core::ChannelOptions>(), 17u);
+  EXPECT_EQ(RowsIn(""), 17u - 8u);  // 8 members are sections (two alarm timings)
   EXPECT_EQ(CountFields<core::InputScalerOptions>(), RowsIn("scaler"));
   // input_size and seed are set by the engine, not the config.
   EXPECT_EQ(CountFields<core::LstmPredictorOptions>(), RowsIn("predictor") + 2);
   EXPECT_EQ(CountFields<core::ResidualMonitorOptions>(), RowsIn("residual"));
   EXPECT_EQ(CountFields<core::ThresholdOptions>(), RowsIn("thresholds"));
+  EXPECT_EQ(CountFields<core::ResumeOptions>(), RowsIn("resume"));
   EXPECT_EQ(CountFields<core::SensorHealthOptions>(), RowsIn("sensor"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("anomaly_alarm"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("sensor_alarm"));
-  EXPECT_EQ(ChannelKeys().size(), 45u);
+  EXPECT_EQ(ChannelKeys().size(), 48u);
   // One `events:` entry.
   EXPECT_EQ(CountFields<core::EventTemplate>(), EventTemplateKeys().size());
 }
@@ -85,6 +86,7 @@ TEST(KeyTableTest, EveryRowReachesItsOwnFieldInsideItsSection) {
       {"predictor", {&o.predictor, sizeof o.predictor}},
       {"residual", {&o.residual, sizeof o.residual}},
       {"thresholds", {&o.thresholds, sizeof o.thresholds}},
+      {"resume", {&o.resume, sizeof o.resume}},
       {"sensor", {&o.sensor, sizeof o.sensor}},
       {"anomaly_alarm", {&o.anomaly_alarm, sizeof o.anomaly_alarm}},
       {"sensor_alarm", {&o.sensor_alarm, sizeof o.sensor_alarm}},

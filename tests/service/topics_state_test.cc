@@ -35,6 +35,21 @@ TEST(StateJsonTest, ChannelStateReadsBack) {
   EXPECT_EQ(j["expected"], 96.5);
   EXPECT_TRUE(j["z"].is_null());
   EXPECT_EQ(j["samples"], 5400);
+  EXPECT_EQ(j["relearns"], 0);
+  EXPECT_FALSE(j.contains("relearning"));
+}
+
+TEST(StateJsonTest, ARelearningChannelSaysSo) {
+  core::ChannelStatus status;
+  status.state = core::ChannelState::kLearning;
+  status.relearning = true;
+  status.relearns = 2;
+  std::string out;
+  ChannelStateJson("cw2.pump_a.flow", status, 1'780'000'000'000'000, &out);
+  const nlohmann::json j = nlohmann::json::parse(out);
+  EXPECT_EQ(j["state"], "learning");
+  EXPECT_EQ(j["relearning"], true);
+  EXPECT_EQ(j["relearns"], 2);
 }
 
 TEST(StateJsonTest, StatusCarriesStateReasonAndCounters) {

@@ -1,0 +1,209 @@
+// What a channel does when its stream resumes after a hole (ResumeOptions): anomaly alarms
+// wait resume.hold_samples while the recurrent state warms up and the level is compared
+// with the learnt one; at the learnt operating point the channel stays armed and a fault
+// present since the resume still raises right after the wait; at an operating point it
+// never learnt (DESIGN-NOTES §1: plants run at other loads from one run to the next) it
+// re-learns its scales, keeping its model, and arms again. The 5-standard-deviation rule
+// and the 60-sample wait are the engine's own defaults (common practice: beyond the usual
+// 3-sigma control limits with margin; a recurrent state settles within tens of samples).
+#include <gtest/gtest.h>
+
+#include <cmath>
+#include <numbers>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "core/engine.h"
+
+namespace nightjar::core {
+namespace {
+
+constexpr TimestampUs kStart = 1'780'000'000LL * kMicrosPerSecond;
+constexpr char kName[] = "cw2.pump_a.flow";
+constexpr int kLearnt = 900;   // samples before the checkpoint (armed at 600)
+constexpr int kLater = 3600;   // the stream resumes an hour after the checkpoint
+constexpr int kHold = 60;      // ResumeOptions default
+constexpr int kRelearn = 512;  // ResumeOptions default
+
+TimestampUs At(int i) { return kStart + static_cast<TimestampUs>(i) * kMicrosPerSecond; }
+
+EngineOptions SmallModel() {
+  EngineOptions options;
+  options.defaults.unit = "m3/h";
+  options.defaults.warmup_samples = 600;
+  options.defaults.sample_period_s = 1.0;
+  options.defaults.predictor.hidden_size = 8;
+  options.defaults.predictor.window = 8;
+  options.defaults.time_of_day_features = false;
+  options.defaults.anomaly_alarm.on_delay_s = 0.0;  // raises are counted sample by sample
+  return options;
+}
+
+// The flow around `level` with noise of `noise` m3/h; the learnt operating point is 50.
+double Flow(int i, double level = 50.0, double noise = 0.3) {
+  std::mt19937_64 rng(static_cast<std::uint64_t>(i) * 7919u + 3u);
+  std::normal_distribution<double> gauss(0.0, 1.0);
+  return level + 5.0 * std::sin(2.0 * std::numbers::pi * i / 300.0) * level / 50.0 +
+         noise * gauss(rng);
+}
+
+std::vector<int> AnomalyRaises(const std::vector<Alert>& alerts, int first_index) {
+  std::vector<int> at;
+  for (const Alert& a : alerts) {
+    if (a.kind == AlertKind::kAnomaly && a.phase == AlertPhase::kRaise) {
+      at.push_back(static_cast<int>((a.time - At(first_index)) / kMicrosPerSecond));
+    }
+  }
+  return at;
+}
+
+// A checkpoint of the flow channel after kLearnt samples at the learnt operating point.
+std::vector<std::uint8_t> LearntCheckpoint(const EngineOptions& options = SmallModel()) {
+  Engine engine(options);
+  const ChannelId id = *engine.AddChannel(kName);
+  std::vector<Alert> alerts;
+  for (int i = 0; i < kLearnt; ++i) engine.Process(id, At(i), Flow(i), alerts);
+  EXPECT_EQ(engine.channel_status(id).state, ChannelState::kArmed);
+  std::vector<std::uint8_t> bytes;
+  engine.SaveChannel(id, bytes);
+  return bytes;
+}
+
+struct Restarted {
+  Engine engine;
+  ChannelId id = 0;
+  Restarted(const std::vector<std::uint8_t>& bytes, const EngineOptions& options = SmallModel())
+      : engine(options) {
+    EXPECT_TRUE(engine.LoadChannel(kName, bytes).ok());
+    id = *engine.FindChannel(kName);
+  }
+  // Feeds resumed samples [from, to) (indices counted from the resume).
+  template <typename Value>
+  void Feed(int from, int to, Value value, std::vector<Alert>& alerts) {
+    for (int k = from; k < to; ++k) {
+      engine.Process(id, At(kLearnt + kLater + k), value(kLearnt + k, k), alerts);
+    }
+  }
+};
+
+TEST(EngineResumeTest, AtTheLearntLevelAFaultPresentSinceTheResumeRaisesRightAfterTheWait) {
+  const std::vector<std::uint8_t> bytes = LearntCheckpoint();
+  Restarted restarted(bytes);
+  std::vector<Alert> alerts;
+  // A bearing gone rough while nightjar was down: the same level, six times the noise.
+  restarted.Feed(
+      0, 200, [](int i, int) { return Flow(i, 50.0, 1.8); }, alerts);
+  const std::vector<int> raises = AnomalyRaises(alerts, kLearnt + kLater);
+  ASSERT_FALSE(raises.empty()) << "a fault present from the start must still be caught";
+  EXPECT_GE(raises.front(), kHold - 1) << "no anomaly raise inside the wait";
+  EXPECT_LE(raises.front(), kHold + 10) << "the charts ran through the wait";
+  const ChannelStatus status = restarted.engine.channel_status(restarted.id);
+  EXPECT_EQ(status.relearns, 0);
+  EXPECT_FALSE(status.relearning);
+}
+
+TEST(EngineResumeTest, AStartUpGlitchInsideTheWaitRaisesNothingButTheSameGlitchLaterDoes) {
+  const std::vector<std::uint8_t> bytes = LearntCheckpoint();
+  const auto glitch_at = [](int at) {
+    return [at](int i, int k) { return Flow(i) + (k == at ? 15.0 : 0.0); };
+  };
+  std::vector<Alert> early;
+  Restarted restarted(bytes);
+  restarted.Feed(0, 200, glitch_at(10), early);
+  EXPECT_TRUE(AnomalyRaises(early, kLearnt + kLater).empty());
+  EXPECT_EQ(restarted.engine.channel_status(restarted.id).state, ChannelState::kArmed);
+
+  std::vector<Alert> late;
+  Restarted again(bytes);
+  again.Feed(0, 200, glitch_at(120), late);
+  const std::vector<int> raises = AnomalyRaises(late, kLearnt + kLater);
+  ASSERT_EQ(raises.size(), 1u) << "the premise: the glitch is an anomaly when armed";
+  EXPECT_EQ(raises.front(), 120);
+}
+
+TEST(EngineResumeTest, ANewOperatingPointIsRelearntInsteadOfAlarmedAndTheChannelArmsAgain) {
+  const std::vector<std::uint8_t> bytes = LearntCheckpoint();
+  // Restarted at a third of the flow, where the flow is also noisier.
+  const auto low_flow = [](int i, int) { return Flow(i, 17.0, 0.9); };
+
+  // The premise, without the level check: the restored model alarms at the new level.
+  EngineOptions unchecked = SmallModel();
+  unchecked.defaults.resume.hold_samples = 0;
+  Restarted blind(bytes, unchecked);
+  std::vector<Alert> blind_alerts;
+  blind.Feed(0, kHold + kRelearn + 300, low_flow, blind_alerts);
+  EXPECT_FALSE(AnomalyRaises(blind_alerts, kLearnt + kLater).empty());
+
+  Restarted restarted(bytes);
+  std::vector<Alert> alerts;
+  restarted.Feed(0, kHold + 1, low_flow, alerts);
+  ChannelStatus status = restarted.engine.channel_status(restarted.id);
+  EXPECT_EQ(status.state, ChannelState::kLearning);
+  EXPECT_TRUE(status.relearning);
+  EXPECT_EQ(status.relearns, 1);
+  restarted.Feed(kHold + 1, kHold + kRelearn + 300, low_flow, alerts);
+  EXPECT_TRUE(AnomalyRaises(alerts, kLearnt + kLater).empty());
+  status = restarted.engine.channel_status(restarted.id);
+  EXPECT_EQ(status.state, ChannelState::kArmed) << "armed again after relearn_samples";
+  EXPECT_FALSE(status.relearning);
+  EXPECT_EQ(status.relearns, 1);
+
+  // Armed at the new level, it watches it: the same rough-bearing fault raises.
+  std::vector<Alert> fault;
+  const int from = kHold + kRelearn + 300;
+  restarted.Feed(
+      from, from + 100, [](int i, int) { return Flow(i, 17.0, 5.0); }, fault);
+  EXPECT_FALSE(AnomalyRaises(fault, kLearnt + kLater).empty());
+}
+
+TEST(EngineResumeTest, AnAlarmFromBeforeTheHoleIsWithdrawnWithAClearWhenTheChannelRelearns) {
+  Engine engine(SmallModel());
+  const ChannelId id = *engine.AddChannel(kName);
+  std::vector<Alert> alerts;
+  for (int i = 0; i < kLearnt; ++i) engine.Process(id, At(i), Flow(i), alerts);
+  for (int i = kLearnt; i < kLearnt + 40; ++i) engine.Process(id, At(i), Flow(i, 50, 3.0), alerts);
+  ASSERT_EQ(engine.channel_status(id).state, ChannelState::kInAlarm);
+  std::vector<std::uint8_t> bytes;
+  engine.SaveChannel(id, bytes);
+
+  Restarted restarted(bytes);
+  std::vector<Alert> resumed;
+  restarted.Feed(
+      0, kHold + 5, [](int i, int) { return Flow(i, 17.0, 0.9); }, resumed);
+  int clears = 0;
+  for (const Alert& a : resumed) {
+    if (a.kind != AlertKind::kAnomaly) continue;
+    ASSERT_EQ(a.phase, AlertPhase::kClear) << a.message;
+    ++clears;
+    EXPECT_NE(a.message.find("re-learning"), std::string::npos) << a.message;
+  }
+  EXPECT_EQ(clears, 1);
+  EXPECT_EQ(restarted.engine.channel_status(restarted.id).state, ChannelState::kLearning);
+}
+
+TEST(EngineResumeTest, ARelearningChannelCheckpointedMidwayStillArmsAfterRelearnSamples) {
+  const std::vector<std::uint8_t> bytes = LearntCheckpoint();
+  const auto low_flow = [](int i, int) { return Flow(i, 17.0, 0.9); };
+  Restarted restarted(bytes);
+  std::vector<Alert> alerts;
+  restarted.Feed(0, kHold + 200, low_flow, alerts);
+  ASSERT_TRUE(restarted.engine.channel_status(restarted.id).relearning);
+  std::vector<std::uint8_t> midway;
+  restarted.engine.SaveChannel(restarted.id, midway);
+
+  // Loaded again and fed on without a hole: it keeps counting towards relearn_samples (512),
+  // not towards warmup_samples (600) from zero.
+  Engine reloaded(SmallModel());
+  ASSERT_TRUE(reloaded.LoadChannel(kName, midway).ok());
+  const ChannelId id = *reloaded.FindChannel(kName);
+  EXPECT_TRUE(reloaded.channel_status(id).relearning);
+  for (int k = kHold + 200; k < kHold + kRelearn + 20; ++k) {
+    reloaded.Process(id, At(kLearnt + kLater + k), low_flow(kLearnt + k, k), alerts);
+  }
+  EXPECT_EQ(reloaded.channel_status(id).state, ChannelState::kArmed);
+  EXPECT_EQ(reloaded.channel_status(id).relearns, 1);
+}
+
+}  // namespace
+}  // namespace nightjar::core
