@@ -120,7 +120,8 @@ const std::array kKeys = {
             "no sample for longer than this many periods is a gap"},
 
     KeySpec{"anomaly_alarm.on_delay_s", NIGHTJAR_FIELD(anomaly_alarm.on_delay_s), Closed(0, 86400),
-            "s", "anomaly must persist this long before the alarm raises"},
+            "s",
+            "anomaly must persist this long before the alarm raises (ISA-18.2 starting value)"},
     KeySpec{"anomaly_alarm.off_delay_s", NIGHTJAR_FIELD(anomaly_alarm.off_delay_s),
             Closed(0, 86400), "s", "anomaly must stay below the clear level this long to clear"},
     KeySpec{"anomaly_alarm.deadband", NIGHTJAR_FIELD(anomaly_alarm.deadband), ClosedOpen(0, 1),

@@ -74,8 +74,12 @@ struct ChannelOptions {
   // quantised or slowly sampled signal), so this rarely needs tuning.
   SensorHealthOptions sensor{.flatline_samples = 600};
 
-  // Raise/clear timing of anomaly alarms (deadband is on statistic/threshold).
-  AlarmTiming anomaly_alarm{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2};
+  // Raise/clear timing of anomaly alarms (deadband is on statistic/threshold). The 15 s
+  // on-delay is the ISA-18.2 / EEMUA starting value for flow and pressure alarms (recalled
+  // from memory, ../shared/references/references.md section 7.2): a lone outlying sample
+  // never raises; on a channel sampled slower than that, two outlying samples in a row
+  // raise at the second.
+  AlarmTiming anomaly_alarm{.on_delay_s = 15.0, .off_delay_s = 30.0, .deadband = 0.2};
   // Raise/clear timing of sensor alarms (not finite, range, flatline, gap).
   AlarmTiming sensor_alarm{.on_delay_s = 0.0, .off_delay_s = 10.0, .deadband = 0.0};
   // Expected events recognised on this channel by their shape (pump start, back-flush).

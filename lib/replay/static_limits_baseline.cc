@@ -35,7 +35,13 @@ StaticLimitsBaseline::StaticLimitsBaseline(int warmup_samples, double k, core::A
 }
 
 StaticLimitsBaseline::StaticLimitsBaseline(const core::ChannelOptions& options)
-    : StaticLimitsBaseline(options.warmup_samples, kDefaultK, options.anomaly_alarm) {}
+    : StaticLimitsBaseline(options.warmup_samples, kDefaultK, LimitBaselineTiming(options)) {}
+
+core::AlarmTiming LimitBaselineTiming(const core::ChannelOptions& options) {
+  core::AlarmTiming timing = options.anomaly_alarm;
+  timing.on_delay_s = 0.0;
+  return timing;
+}
 
 double LimitRatio(double deviation, double half_width) {
   if (half_width > 0.0) return deviation / half_width;

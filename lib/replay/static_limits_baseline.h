@@ -4,9 +4,9 @@
 // deviation, Welford) over the channel's first `warmup_samples` usable samples, then
 // judges every later sample by ratio = |value - mean| / (k * sigma): the value has left
 // the band when ratio >= 1. The ratio drives a core::Alarm with the given timing, so with
-// the engine's anomaly AlarmTiming (ChannelOptions::anomaly_alarm: on/off delay and
-// deadband) both are judged on equal terms: it raises when the value leaves the band and
-// clears when it is back inside the deadband (ratio < 1 - deadband) for the off-delay.
+// the engine's anomaly off-delay and deadband (LimitBaselineTiming below, which leaves out
+// the on-delay) it raises when the value leaves the band and clears when it is back inside
+// the deadband (ratio < 1 - deadband) for the off-delay.
 // The limits never move after the warm-up. A channel constant over its warm-up has a
 // zero-width band: any other value then raises (ratio +inf), the same value gives 0.
 //
@@ -51,6 +51,12 @@ struct BaselineEdge {
 // deviation from the band's centre, where a band of zero width is crossed by any deviation
 // (an infinite ratio) and by no zero one.
 double LimitRatio(double deviation, double half_width);
+// The alarm timing both limit baselines take from the engine's options: the anomaly
+// alarm's off-delay, deadband and shelving limit, but no on-delay. They flag one sample at
+// a time, and on a slowly sampled series an on-delay would silence exactly the lone
+// far-out samples they exist to catch; scoring them with it would make nightjar look
+// better by handicapping them, so they keep their own best form.
+core::AlarmTiming LimitBaselineTiming(const core::ChannelOptions& options);
 // Feeds `ratio` to the channel's alarm and appends the edge it gives, if any.
 void UpdateLimitAlarm(core::Alarm& alarm, core::TimestampUs time, const std::string& channel,
                       double value, double ratio, std::vector<BaselineEdge>& out);
@@ -69,7 +75,7 @@ class StaticLimitsBaseline {
   // Validate (asserted; in a release build bad values are clamped: warm-up to >= 2, k to
   // 3 when not finite or <= 0, the timing as core::Alarm does).
   explicit StaticLimitsBaseline(int warmup_samples, double k, core::AlarmTiming timing);
-  // The engine's terms: options.warmup_samples, k = 3, options.anomaly_alarm.
+  // The engine's terms: options.warmup_samples, k = 3, LimitBaselineTiming(options).
   explicit StaticLimitsBaseline(const core::ChannelOptions& options);
 
   // OK when the arguments are in range; else InvalidArgument naming the bad one.

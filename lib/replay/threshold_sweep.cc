@@ -83,7 +83,7 @@ std::vector<SweepSetting> DefaultSweepGrid() {
   for (const double budget : {0.1, 0.5, 2.0, 8.0}) {
     for (const double k : {0.25, 0.5, 1.0}) {
       for (const double lambda : {0.05, 0.1, 0.2}) {
-        for (const double delay : {0.0, 10.0, 30.0}) {
+        for (const double delay : {0.0, 15.0, 30.0}) {
           grid.push_back({budget, k, lambda, delay});
         }
       }

@@ -81,7 +81,7 @@ struct SweepSetting {
   double false_alarms_per_day = 0.5;  // thresholds.false_alarms_per_day
   double cusum_k = 0.5;               // thresholds.cusum_k
   double ewma_lambda = 0.1;           // thresholds.ewma_lambda
-  double on_delay_s = 0.0;            // anomaly_alarm.on_delay_s
+  double on_delay_s = 15.0;           // anomaly_alarm.on_delay_s
 
   bool operator==(const SweepSetting&) const = default;
 };
@@ -90,12 +90,12 @@ struct SweepSetting {
 SweepSetting SettingOf(const core::ChannelOptions& options);
 // `options` with the four keys of `setting`.
 core::ChannelOptions WithSetting(core::ChannelOptions options, const SweepSetting& setting);
-// "false_alarms_per_day 0.5, cusum_k 0.5, ewma_lambda 0.1, on_delay_s 0".
+// "false_alarms_per_day 0.5, cusum_k 0.5, ewma_lambda 0.1, on_delay_s 15".
 std::string DescribeSetting(const SweepSetting& setting);
 
 // The default grid, 108 settings, in this order (the last key varies fastest):
 // false_alarms_per_day {0.1, 0.5, 2, 8} x cusum_k {0.25, 0.5, 1} x ewma_lambda
-// {0.05, 0.1, 0.2} x on_delay_s {0, 10, 30}. It holds the built-in default setting.
+// {0.05, 0.1, 0.2} x on_delay_s {0, 15, 30}. It holds the built-in default setting.
 std::vector<SweepSetting> DefaultSweepGrid();
 
 // True when `a` is more sensitive than `b`: a larger false-alarm budget, then a shorter

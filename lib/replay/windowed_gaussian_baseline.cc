@@ -31,7 +31,8 @@ WindowedGaussianBaseline::WindowedGaussianBaseline(int window, double k, core::A
 }
 
 WindowedGaussianBaseline::WindowedGaussianBaseline(const core::ChannelOptions& options)
-    : WindowedGaussianBaseline(kDefaultGaussianWindow, kDefaultGaussianK, options.anomaly_alarm) {}
+    : WindowedGaussianBaseline(kDefaultGaussianWindow, kDefaultGaussianK,
+                               LimitBaselineTiming(options)) {}
 
 std::optional<double> WindowedGaussianBaseline::Process(std::string_view channel_name,
                                                         core::TimestampUs time, double value,

@@ -18,9 +18,10 @@
 // shortest open series used by tests/quality (TEP: 960 rows), so every series is judged
 // over most of its length.
 //
-// The ratio drives a core::Alarm with the given timing (the engine's anomaly alarm
-// timing, like the other baselines): it raises when the value leaves the band and clears
-// when the ratio is below 1 - deadband for the off-delay.
+// The ratio drives a core::Alarm with the given timing (by default LimitBaselineTiming,
+// the engine's anomaly alarm timing without its on-delay, as for the static baseline): it
+// raises when the value leaves the band and clears when the ratio is below 1 - deadband
+// for the off-delay.
 //
 // Usable samples: finite values at a time later than the channel's previous sample; the
 // others are counted (skipped_samples) and ignored, as the engine drops them.
@@ -58,7 +59,7 @@ class WindowedGaussianBaseline {
   // (asserted; in a release build bad values are clamped: window to >= 2, k to 3, the
   // timing as core::Alarm does).
   WindowedGaussianBaseline(int window, double k, core::AlarmTiming timing);
-  // The defaults above with the engine's anomaly alarm timing (options.anomaly_alarm).
+  // The defaults above with LimitBaselineTiming(options) (static_limits_baseline.h).
   explicit WindowedGaussianBaseline(const core::ChannelOptions& options);
 
   // OK when the arguments are in range; else InvalidArgument naming the bad one.

@@ -6,6 +6,7 @@
 #include <limits>
 #include <string>
 
+#include "core/engine_options.h"
 #include "support/allocation_counter.h"
 
 // Sources named beside each check:
@@ -164,6 +165,23 @@ TEST(AlarmTest, OnDelayRaisesAfterUnbrokenHold) {
   EXPECT_EQ(alarm.Update(At(15), 1.0), AlarmEdge::kRaise);  // TR18.2.5/EEMUA: 5 s held
   EXPECT_EQ(alarm.condition_since(), At(10));               // common practice
   EXPECT_EQ(alarm.raised_at(), At(15));                     // common practice
+}
+
+// The engine's default anomaly timing (15 s on-delay) on a channel sampled once a minute,
+// slower than the delay: a lone outlying sample never raises, two in a row raise at the
+// second (its update finds the condition held for 60 s >= 15 s).
+TEST(AlarmTest, DefaultAnomalyOnDelayOnASlowChannelNeedsTwoSamples) {
+  const AlarmTiming timing = ChannelOptions{}.anomaly_alarm;
+  EXPECT_EQ(timing.on_delay_s, 15.0);  // TR18.2.5/EEMUA: flow/pressure starting value
+  Alarm lone(timing);
+  EXPECT_EQ(lone.Update(At(0), 3.0), AlarmEdge::kNone);   // TR18.2.5/EEMUA: on-delay
+  EXPECT_EQ(lone.Update(At(60), 0.4), AlarmEdge::kNone);  // common practice: gone again
+  EXPECT_EQ(lone.Update(At(120), 0.4), AlarmEdge::kNone);
+  EXPECT_FALSE(lone.raised_at().has_value());  // TR18.2.5/EEMUA: one sample never raises
+  Alarm pair(timing);
+  EXPECT_EQ(pair.Update(At(0), 3.0), AlarmEdge::kNone);    // TR18.2.5/EEMUA: on-delay
+  EXPECT_EQ(pair.Update(At(60), 1.5), AlarmEdge::kRaise);  // TR18.2.5/EEMUA: held 60 s
+  EXPECT_EQ(pair.raised_at(), At(60));                     // common practice
 }
 
 TEST(AlarmTest, RatioExactlyOneIsPresent) {

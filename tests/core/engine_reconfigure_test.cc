@@ -20,6 +20,7 @@ EngineOptions Quick() {
   options.defaults.warmup_samples = 200;
   options.defaults.scaler.warmup_samples = 20;
   options.defaults.sensor.flatline_samples = 0;
+  options.defaults.anomaly_alarm.on_delay_s = 0.0;  // a short step raises at once
   return options;
 }
 

@@ -173,8 +173,9 @@ TEST(RunReloadTest, AReloadResettingAChannelInAlarmPublishesAClearFirst) {
   ASSERT_TRUE(started.ok()) << started.status().message();
   DaemonProcess& daemon = **started;
 
-  // Warm-up (200 samples), then the step: raised, and still up at sample 410.
-  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, 410, 10.0, 400, 1000)).ok());
+  // Warm-up (200 samples), then the step at 400: raised after the 15 s on-delay, and still
+  // up at sample 430.
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, 430, 10.0, 400, 1000)).ok());
   ASSERT_TRUE(
       WaitFor([&] { return JsonUnder(*witness, kAlertPrefix).size() == 1; }, milliseconds(10000)))
       << daemon.log();

@@ -194,13 +194,15 @@ TEST(ReplayRunnerTest, RaisesTheSensorAlertAndTheStepAnomaly) {
   ASSERT_NE(nan, nullptr);
   EXPECT_EQ(nan->time, At(kNanAt));
   EXPECT_EQ(nan->kind, core::AlertKind::kSensor);
-  // The step is raised within ten samples (the bound of engine_test's step test). The
+  // The step is raised within ten samples of the 15 s default on-delay (the bound of
+  // engine_test's step test). The
   // small fast-learning model leaves residuals of ~0.5 (not the noise's 0.3), so the step
   // is 4.0: ~8 residual sigmas, beyond the spike limit.
   const core::Alert* step = FirstAnomalyRaiseFrom(run.alerts, At(kStepAt));
   ASSERT_NE(step, nullptr);
   EXPECT_EQ(step->channel, "skid.flow");
-  EXPECT_LE(step->time, At(kStepAt + 10));
+  EXPECT_GE(step->time, At(kStepAt + 15));
+  EXPECT_LE(step->time, At(kStepAt + 15 + 10));
   EXPECT_GT(step->z, 0.0);
   EXPECT_EQ(FirstAnomalyRaiseFrom(run.alerts, 0)->time, step->time) << "quiet before the step";
 
@@ -423,7 +425,7 @@ TEST(ReplayRunnerTest, DirectoryOutputMatchesTheAlertsAndCounts) {
   EXPECT_EQ(overall.at("detected"), 1) << "the step, not the quiet window";
   const nlohmann::json& step = overall.at("windows")[0];
   EXPECT_EQ(step.at("first_channel"), "skid.flow");
-  EXPECT_LE(step.at("delay_s").get<double>(), 10.0);
+  EXPECT_LE(step.at("delay_s").get<double>(), 15.0 + 10.0);  // on-delay + ten samples
   EXPECT_TRUE(overall.at("windows")[1].at("delay_s").is_null()) << "missed: NaN is null";
   EXPECT_EQ(scores.at("channels").size(), 2u);
 

@@ -87,12 +87,18 @@ TEST(StaticLimitsBaselineTest, JustInsideAndJustOutsideTheLimit) {
 }
 
 TEST(StaticLimitsBaselineTest, EngineTimingHoldsTheClearForTheOffDelay) {
-  // Engine anomaly timing: off-delay 30 s, deadband 0.2 (clear below ratio 0.8).
-  //  t=4: 7   raise (ratio 1.162)
+  // Engine anomaly timing without its on-delay (LimitBaselineTiming): off-delay 30 s,
+  // deadband 0.2 (clear below ratio 0.8).
+  //  t=4: 7   raise (ratio 1.162) on the first outlying sample
   //  t=5: 6   ratio 0.904 >= 0.8: inside the deadband, stays raised
   //  t=6..: 5 ratio 2.5 / 3.873 = 0.645 < 0.8: off-delay runs from t=6, clear at t=36.
   const core::ChannelOptions engine_defaults;
-  StaticLimitsBaseline baseline(4, 3.0, engine_defaults.anomaly_alarm);
+  const core::AlarmTiming timing = LimitBaselineTiming(engine_defaults);
+  EXPECT_GT(engine_defaults.anomaly_alarm.on_delay_s, 0.0);
+  EXPECT_EQ(timing.on_delay_s, 0.0);
+  EXPECT_EQ(timing.off_delay_s, engine_defaults.anomaly_alarm.off_delay_s);
+  EXPECT_EQ(timing.deadband, engine_defaults.anomaly_alarm.deadband);
+  StaticLimitsBaseline baseline(4, 3.0, timing);
   std::vector<double> values = {1, 2, 3, 4, 7, 6};
   for (int i = 0; i < 40; ++i) values.push_back(5);
   std::vector<BaselineEdge> edges = Feed(baseline, "c", values, 0);

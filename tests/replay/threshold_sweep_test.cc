@@ -163,7 +163,7 @@ TEST(ThresholdSweepTest, BaseSettingReproducesTheReplaysRaisesExactly) {
   ASSERT_FALSE(flow.base_anomaly_raises.empty());
   bool step_raised = false;
   for (const core::TimestampUs t : flow.base_anomaly_raises) {
-    step_raised = step_raised || (t >= At(1200) && t <= At(1210));
+    step_raised = step_raised || (t >= At(1200) && t <= At(1200 + 15 + 10));  // 15 s on-delay
   }
   EXPECT_TRUE(step_raised);
   ExpectBaseReproduced(*cache);
@@ -260,7 +260,7 @@ TEST(ThresholdSweepTest, DefaultGridHasAbout100SettingsIncludingTheDefault) {
   loose.false_alarms_per_day = 2.0;
   EXPECT_TRUE(MoreSensitive(loose, 5, defaults, 1));
   SweepSetting delayed = defaults;
-  delayed.on_delay_s = 10.0;
+  delayed.on_delay_s = 30.0;
   EXPECT_TRUE(MoreSensitive(defaults, 5, delayed, 1));
   EXPECT_FALSE(MoreSensitive(defaults, 5, defaults, 1));
   EXPECT_TRUE(MoreSensitive(defaults, 1, defaults, 5));
