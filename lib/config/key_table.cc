@@ -104,6 +104,9 @@ const std::array kKeys = {
             "learnt sd",
             "a mean level over the wait this far from the learnt mean is a new operating point: "
             "the channel re-learns"},
+    KeySpec{"resume.relearn_after_s", NIGHTJAR_FIELD(resume.relearn_after_s), AtLeast(0), "s",
+            "the level check follows only holes longer than this (or a new time line); after "
+            "a shorter one a level far off raises"},
     KeySpec{"resume.relearn_samples", NIGHTJAR_FIELD(resume.relearn_samples), AtLeast(2), "samples",
             "samples a re-learning channel learns before it arms again (at least "
             "scaler.warmup_samples)"},

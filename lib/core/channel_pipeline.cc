@@ -134,7 +134,10 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   // The recurrent state restarts (below, or in RestartTimeline) and the plant may be at
   // another operating point after the silence: hold anomaly alarms and check the level.
   // A restart that follows on within the gap limit continues as if nothing happened.
-  if (after_gap || new_timeline) BeginResumeHold();
+  if (after_gap || new_timeline) {
+    BeginResumeHold(new_timeline || (has_last_time_ && ToSeconds(time - last_time_) >
+                                                           options_.resume.relearn_after_s));
+  }
   has_last_time_ = true;
   last_time_ = time;
   period_.Add(time);
@@ -324,15 +327,16 @@ int ChannelPipeline::ArmAfterSamples() const {
                      : options_.warmup_samples;
 }
 
-void ChannelPipeline::BeginResumeHold() {
+void ChannelPipeline::BeginResumeHold(bool check_level) {
   hold_left_ = options_.resume.hold_samples;
+  hold_checks_level_ = check_level;
   hold_levels_.Reset();
 }
 
 void ChannelPipeline::ContinueResumeHold(const Context& context, std::vector<Alert>& out) {
   if (--hold_left_ > 0) return;
   const double off_sd = std::abs(hold_levels_.mean() - scaler_.mean()) / scaler_.scale();
-  if (off_sd > options_.resume.relearn_beyond_sd) {
+  if (hold_checks_level_ && off_sd > options_.resume.relearn_beyond_sd) {
     Relearn(context, out);
     return;
   }

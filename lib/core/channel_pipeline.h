@@ -132,7 +132,8 @@ class ChannelPipeline {
                           std::vector<Alert>& out);
   void TryArm(ThresholdDesigner& designer);
   int ArmAfterSamples() const;
-  void BeginResumeHold();
+  // `check_level`: compare the level over the hold with the learnt one (ResumeOptions).
+  void BeginResumeHold(bool check_level);
   void ContinueResumeHold(const Context& context, std::vector<Alert>& out);
   void Relearn(const Context& context, std::vector<Alert>& out);
   void RestartTimeline();  // a restored channel's stream resumes on an earlier clock
@@ -168,6 +169,7 @@ class ChannelPipeline {
   // Resume hold (ResumeOptions): charted samples left, and the levels seen in it. Not
   // checkpointed: a restart begins a new hold.
   int hold_left_ = 0;
+  bool hold_checks_level_ = false;
   RunningMoments hold_levels_;
   ResidualReading last_reading_;
   ChannelStatus counters_;

@@ -42,6 +42,9 @@ Status ValidateChannelOptions(const ChannelOptions& options) {
       !std::isfinite(options.resume.relearn_beyond_sd)) {
     return Invalid("resume.relearn_beyond_sd", "must be > 0 (standard deviations)");
   }
+  if (!(options.resume.relearn_after_s >= 0.0) || !std::isfinite(options.resume.relearn_after_s)) {
+    return Invalid("resume.relearn_after_s", "must be >= 0 (seconds)");
+  }
   if (options.resume.relearn_samples < 2) return Invalid("resume.relearn_samples", "must be >= 2");
   if (!(options.scaler.adapt_alpha >= 0.0 && options.scaler.adapt_alpha < 1.0)) {
     return Invalid("scaler.adapt_alpha", "must be in [0, 1)");

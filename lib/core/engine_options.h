@@ -43,6 +43,13 @@ struct ResumeOptions {
   // learnt: it re-learns instead of alarming on every sample. Default 5 (beyond the usual
   // 3-sigma control limits with margin; common practice).
   double relearn_beyond_sd = 5.0;
+  // The level check applies only after a hole longer than this, or on a new time line: a
+  // plant seldom moves to a new operating point within minutes, but a fault can start in
+  // a short hole (a recorder that paused while a valve was shut) and must then raise, not
+  // be learnt. Shorter holes beyond the gap limit get the wait alone. Default 3600 s (an
+  // hour; judgement, common practice: a restart after an upgrade follows on, a restart
+  // after a shutdown or a turnaround may not).
+  double relearn_after_s = 3600.0;
   // Samples a re-learning channel learns (input scale and residual scale anew; its model
   // weights are kept) before it arms again, and at least scaler.warmup_samples. Default 512: one
   // time constant of the default residual-scale average (residual.scale_alpha = 1/512).

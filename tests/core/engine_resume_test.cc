@@ -3,9 +3,11 @@
 // with the learnt one; at the learnt operating point the channel stays armed and a fault
 // present since the resume still raises right after the wait; at an operating point it
 // never learnt (DESIGN-NOTES §1: plants run at other loads from one run to the next) it
-// re-learns its scales, keeping its model, and arms again. The 5-standard-deviation rule
-// and the 60-sample wait are the engine's own defaults (common practice: beyond the usual
-// 3-sigma control limits with margin; a recurrent state settles within tens of samples).
+// re-learns its scales, keeping its model, and arms again, when the hole was longer than
+// resume.relearn_after_s (an hour); after a shorter one the far-off level raises. The
+// 5-standard-deviation rule and the 60-sample wait are the engine's own defaults (common practice:
+// beyond the usual 3-sigma control limits with margin; a recurrent state settles within tens of
+// samples).
 #include <gtest/gtest.h>
 
 #include <cmath>
@@ -22,7 +24,7 @@ namespace {
 constexpr TimestampUs kStart = 1'780'000'000LL * kMicrosPerSecond;
 constexpr char kName[] = "cw2.pump_a.flow";
 constexpr int kLearnt = 900;   // samples before the checkpoint (armed at 600)
-constexpr int kLater = 3600;   // the stream resumes an hour after the checkpoint
+constexpr int kLater = 7200;   // the stream resumes two hours after the checkpoint
 constexpr int kHold = 60;      // ResumeOptions default
 constexpr int kRelearn = 512;  // ResumeOptions default
 
@@ -155,6 +157,29 @@ TEST(EngineResumeTest, ANewOperatingPointIsRelearntInsteadOfAlarmedAndTheChannel
   restarted.Feed(
       from, from + 100, [](int i, int) { return Flow(i, 17.0, 5.0); }, fault);
   EXPECT_FALSE(AnomalyRaises(fault, kLearnt + kLater).empty());
+}
+
+// A short hole (five minutes, under resume.relearn_after_s) is no reason to believe the
+// plant moved: the same far-off level that a restart an hour later re-learns (above) is a
+// fault that started while the recorder paused, and it raises right after the wait.
+TEST(EngineResumeTest, AfterAShortHoleAFarOffLevelRaisesInsteadOfBeingRelearnt) {
+  Engine engine(SmallModel());
+  const ChannelId id = *engine.AddChannel(kName);
+  std::vector<Alert> alerts;
+  for (int i = 0; i < kLearnt; ++i) engine.Process(id, At(i), Flow(i), alerts);
+  ASSERT_EQ(engine.channel_status(id).state, ChannelState::kArmed);
+  constexpr int kShortHole = 300;
+  static_assert(kShortHole < 3600, "shorter than the default resume.relearn_after_s");
+  std::vector<Alert> after;
+  for (int k = 0; k < kHold + 100; ++k) {
+    engine.Process(id, At(kLearnt + kShortHole + k), Flow(kLearnt + k, 17.0, 0.9), after);
+  }
+  const std::vector<int> raises = AnomalyRaises(after, kLearnt + kShortHole);
+  ASSERT_FALSE(raises.empty()) << "a level far off after a short hole is an anomaly";
+  EXPECT_GE(raises.front(), kHold - 1) << "no anomaly raise inside the wait";
+  EXPECT_LE(raises.front(), kHold + 10);
+  EXPECT_EQ(engine.channel_status(id).relearns, 0);
+  EXPECT_FALSE(engine.channel_status(id).relearning);
 }
 
 TEST(EngineResumeTest, AnAlarmFromBeforeTheHoleIsWithdrawnWithAClearWhenTheChannelRelearns) {
