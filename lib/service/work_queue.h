@@ -8,6 +8,10 @@
 // the caller bounds how many (EngineWorker queues one hole marker per channel per hole).
 // PopAll() hands the worker everything queued, control items first, in one lock.
 //
+// Wake-ups: the consumer only waits while the queue is empty and PopAll() empties it, so
+// a push notifies the condition variable only when it makes an empty queue non-empty;
+// pushes onto a queue that already holds something cost no wake-up (no futex call).
+//
 // Thread-safety: any number of producers, one consumer (PopAll). Ownership: owns the
 // queued items.
 #pragma once
@@ -29,30 +33,36 @@ class WorkQueue {
   // False when `capacity` samples are waiting already: nothing is queued and `sample` is
   // left as it was (the caller may still read it).
   bool TryPush(Sample&& sample) {
+    bool wake = false;
     {
       const std::lock_guard lock(mutex_);
       if (samples_.size() >= capacity_) return false;
+      wake = EmptyLocked();
       samples_.push_back(std::move(sample));
     }
-    ready_.notify_one();
+    if (wake) ready_.notify_one();
     return true;
   }
 
   // Queued after every sample pushed so far, whatever the capacity.
   void PushMarker(Sample marker) {
+    bool wake = false;
     {
       const std::lock_guard lock(mutex_);
+      wake = EmptyLocked();
       samples_.push_back(std::move(marker));
     }
-    ready_.notify_one();
+    if (wake) ready_.notify_one();
   }
 
   void PushControl(Control control) {
+    bool wake = false;
     {
       const std::lock_guard lock(mutex_);
+      wake = EmptyLocked();
       controls_.push_back(std::move(control));
     }
-    ready_.notify_one();
+    if (wake) ready_.notify_one();
   }
 
   // Waits up to `timeout` for anything, then moves every queued item out (the vectors are
@@ -77,6 +87,8 @@ class WorkQueue {
   std::size_t capacity() const { return capacity_; }
 
  private:
+  bool EmptyLocked() const { return samples_.empty() && controls_.empty(); }
+
   const std::size_t capacity_;
   mutable std::mutex mutex_;
   std::condition_variable ready_;

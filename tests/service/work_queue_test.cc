@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <atomic>
 #include <chrono>
 #include <string>
 #include <thread>
@@ -43,6 +44,49 @@ TEST(WorkQueueTest, PopAllWaitsForAProducer) {
   EXPECT_EQ(samples, (std::vector<int>{42}));
   EXPECT_FALSE(queue.PopAll(milliseconds(1), samples, controls));
   EXPECT_TRUE(samples.empty());
+}
+
+// Only a push onto an empty queue notifies the consumer; every burst after a drain must
+// still wake it. The consumer waits far longer (60 s) than the test's deadline for each
+// burst (20 s), so a missed wake-up fails the deadline instead of passing late.
+TEST(WorkQueueTest, EveryBurstAfterADrainWakesTheConsumer) {
+  WorkQueue<int, int> queue(64);
+  std::atomic<int> taken{0};
+  std::atomic<int> controls_taken{0};
+  std::atomic<bool> done{false};
+  std::thread consumer([&] {
+    std::vector<int> samples;
+    std::vector<int> controls;
+    while (!done.load()) {
+      queue.PopAll(milliseconds(60'000), samples, controls);
+      taken += static_cast<int>(samples.size());
+      controls_taken += static_cast<int>(controls.size());
+    }
+  });
+  const auto wait_for = [](const auto& condition) {
+    const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(20);
+    while (!condition()) {
+      if (std::chrono::steady_clock::now() > deadline) return false;
+      std::this_thread::yield();
+    }
+    return true;
+  };
+  for (int burst = 0; burst < 5; ++burst) {
+    for (int i = 0; i < 10; ++i) EXPECT_TRUE(queue.TryPush(burst * 10 + i));
+    if (!wait_for([&] { return taken.load() == (burst + 1) * 10; })) {
+      ADD_FAILURE() << "burst " << burst << " did not wake the consumer";
+      break;
+    }
+    queue.PushControl(burst);  // a control item alone on an empty queue wakes it too
+    if (!wait_for([&] { return controls_taken.load() == burst + 1; })) {
+      ADD_FAILURE() << "control " << burst << " did not wake the consumer";
+      break;
+    }
+  }
+  done.store(true);
+  queue.PushControl(-1);  // the last wake-up (the consumer exits within 60 s regardless)
+  consumer.join();
+  EXPECT_EQ(queue.size(), 0u);
 }
 
 }  // namespace
