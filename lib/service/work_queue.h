@@ -1,7 +1,8 @@
 // WorkQueue: the bounded hand-over from the network thread to one engine worker.
 //
-// Samples go through TryPush(): it never blocks, and when the queue already holds
-// `capacity` samples the sample is refused (the caller counts the drop). Control items
+// Samples go through TryPush() or, a batch at a time, TryPushBatch(): neither blocks, and
+// when the queue already holds `capacity` samples a sample is refused (the caller counts
+// the drop). Control items
 // (operator commands, a config reload, the stop request) go through PushControl(), which
 // always succeeds: there are few of them and losing one would lose an operator's action.
 // PushMarker() queues a sample-stream item beyond the capacity, in order with the samples:
@@ -16,10 +17,12 @@
 // queued items.
 #pragma once
 
+#include <algorithm>
 #include <chrono>
 #include <condition_variable>
 #include <cstddef>
 #include <deque>
+#include <iterator>
 #include <mutex>
 #include <vector>
 
@@ -42,6 +45,26 @@ class WorkQueue {
     }
     if (wake) ready_.notify_one();
     return true;
+  }
+
+  // Moves samples from the front of `batch` into the queue while there is room, in one
+  // lock; returns how many. The rest, batch[returned..], are left as they were (refused:
+  // the caller counts them). `batch` keeps its size.
+  std::size_t TryPushBatch(std::vector<Sample>& batch) {
+    bool wake = false;
+    std::size_t taken = 0;
+    {
+      const std::lock_guard lock(mutex_);
+      const std::size_t room = samples_.size() >= capacity_ ? 0 : capacity_ - samples_.size();
+      taken = std::min(room, batch.size());
+      if (taken == 0) return 0;
+      wake = EmptyLocked();
+      const auto first = batch.begin();
+      samples_.insert(samples_.end(), std::make_move_iterator(first),
+                      std::make_move_iterator(first + static_cast<std::ptrdiff_t>(taken)));
+    }
+    if (wake) ready_.notify_one();
+    return taken;
   }
 
   // Queued after every sample pushed so far, whatever the capacity.

@@ -33,6 +33,23 @@ TEST(WorkQueueTest, RefusesSamplesBeyondCapacityButNeverControls) {
   EXPECT_TRUE(queue.TryPush(5));  // room again
 }
 
+TEST(WorkQueueTest, BatchesTakeWhatFitsFromTheFront) {
+  WorkQueue<std::string, int> queue(4);
+  EXPECT_TRUE(queue.TryPush("a"));
+  std::vector<std::string> batch = {"b", "c", "d", "e", "f"};
+  EXPECT_EQ(queue.TryPushBatch(batch), 3u);
+  ASSERT_EQ(batch.size(), 5u);
+  EXPECT_EQ(batch[3], "e");  // refused ones are left as they were
+  EXPECT_EQ(batch[4], "f");
+  std::vector<std::string> full = {"g"};
+  EXPECT_EQ(queue.TryPushBatch(full), 0u);
+  EXPECT_EQ(full[0], "g");
+  std::vector<std::string> samples;
+  std::vector<int> controls;
+  ASSERT_TRUE(queue.PopAll(milliseconds(0), samples, controls));
+  EXPECT_EQ(samples, (std::vector<std::string>{"a", "b", "c", "d"}));
+}
+
 TEST(WorkQueueTest, PopAllWaitsForAProducer) {
   WorkQueue<int, int> queue(8);
   std::thread producer([&queue] { EXPECT_TRUE(queue.TryPush(42)); });
