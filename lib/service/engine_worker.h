@@ -58,6 +58,7 @@
 #include <cstdint>
 #include <functional>
 #include <memory>
+#include <optional>
 #include <string>
 #include <thread>
 #include <unordered_set>
@@ -152,7 +153,11 @@ class EngineWorker {
   };
 
   void Run();
-  void HandleSample(const SampleItem& sample, core::TimestampUs now);
+  // The samples of one PopAll, in order.
+  void HandleSamples(const std::vector<SampleItem>& samples, core::TimestampUs now);
+  // `id`: the channel's id looked up before the batch, or nullopt if it had none then.
+  void HandleSample(const SampleItem& sample, std::optional<core::ChannelId> id,
+                    core::TimestampUs now);
   void HandleHole(const SampleItem& marker);
   // Grows the per-channel vectors to the engine's channel count; new ones are unsaved
   // unless `saved` (loaded from the state folder itself).
@@ -189,6 +194,7 @@ class EngineWorker {
   std::vector<ChannelView> views_;
   std::vector<char> unsaved_;  // by ChannelId: changed since its last checkpoint
   std::vector<core::Alert> alerts_;
+  std::vector<std::optional<core::ChannelId>> ids_;  // HandleSamples: by sample
   std::string topic_;
   std::string payload_;
   core::TimestampUs newest_time_ = 0;  // newest sample time seen
