@@ -11,9 +11,10 @@
 //
 // Threads: every method is safe to call from any thread, except that the Set*Handler()
 // calls must come before Start(). Handlers run on the bus's network thread, one call at a
-// time, and must return quickly: copy what they need into a queue and leave the work
-// (model updates, file I/O, logging bursts) to other threads. A handler may call
-// Publish() and Subscribe(); it must not call Stop() or destroy the bus.
+// time (the batch-end handler after the messages of each batch), and must return quickly:
+// copy what they need into a queue and leave the work (model updates, file I/O, logging
+// bursts) to other threads. A handler may call Publish() and Subscribe(); it must not
+// call Stop() or destroy the bus.
 //
 // Ownership: the bus copies topics and payloads it keeps; string_views handed to a handler
 // are valid only during that call.
@@ -31,6 +32,12 @@ namespace nightjar::mqtt {
 
 // Called for every message received on a subscribed filter.
 using MessageHandler = std::function<void(std::string_view topic, std::string_view payload)>;
+// Called on the network thread after each read of the connection that passed one or more
+// messages to the message handler: those messages form a batch, and a handler that
+// collects them (per worker, say) hands them on here, once per batch rather than once
+// per message. Every message handed to the message handler is followed by this call
+// before the network thread waits for the network again.
+using BatchEndHandler = std::function<void()>;
 // Called with true after each successful connect (filters already re-subscribed) and with
 // false when an established connection is lost or closed. Failed attempts are not reported
 // here; they show in BusStats::connect_failures and last_error.
@@ -63,6 +70,9 @@ class MessageBus {
   // Sets the handler for incoming messages (empty: messages are counted and dropped).
   // Before Start() only.
   virtual void SetMessageHandler(MessageHandler handler) = 0;
+  // Sets the handler called at the end of each batch of messages (empty: none). Before
+  // Start() only.
+  virtual void SetBatchEndHandler(BatchEndHandler handler) = 0;
   // Sets the handler for connection changes (empty: none). Before Start() only.
   virtual void SetConnectionHandler(ConnectionHandler handler) = 0;
 

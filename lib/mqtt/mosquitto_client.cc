@@ -214,6 +214,18 @@ void MosquittoClient::SetMessageHandler(MessageHandler handler) {
   if (!started_) message_handler_ = std::move(handler);
 }
 
+void MosquittoClient::SetBatchEndHandler(BatchEndHandler handler) {
+  std::lock_guard lock(mutex_);
+  assert(!started_ && "SetBatchEndHandler() must come before Start()");
+  if (!started_) batch_end_handler_ = std::move(handler);
+}
+
+void MosquittoClient::EndBatch() {
+  if (batch_messages_ == 0) return;
+  batch_messages_ = 0;
+  if (batch_end_handler_) batch_end_handler_();
+}
+
 void MosquittoClient::SetConnectionHandler(ConnectionHandler handler) {
   std::lock_guard lock(mutex_);
   assert(!started_ && "SetConnectionHandler() must come before Start()");
@@ -275,6 +287,7 @@ void MosquittoClient::Run(bool connect_failed) {
       need_connect = false;
     }
     const int rc = mosquitto_loop(mosq_, kLoopTimeoutMs, 1);
+    EndBatch();  // what this read delivered, also when the connection went with it
     if (rc == MOSQ_ERR_SUCCESS && mosquitto_socket(mosq_) != -1) {
       FlushOutbox();
       continue;
@@ -547,6 +560,7 @@ void MosquittoClient::OnMessage(mosquitto* /*mosq*/, void* obj, const mosquitto_
   const std::string_view payload(static_cast<const char*>(message->payload),
                                  static_cast<std::size_t>(message->payloadlen));
   self->message_handler_(topic, payload);
+  ++self->batch_messages_;
 }
 
 void MosquittoClient::OnSubscribe(mosquitto* /*mosq*/, void* obj, int mid, int qos_count,

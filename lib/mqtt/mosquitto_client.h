@@ -33,6 +33,10 @@
 // at once rather than held by Nagle's algorithm until the broker's delayed ACK. The broker
 // should do the same towards its subscribers (mosquitto: `set_tcp_nodelay true`).
 //
+// Batches: the batch-end handler (message_bus.h) runs after each mosquitto_loop() call
+// that passed messages to the message handler. One call can read many packets: while
+// the MQTT ingest bench drains a burst of 10 000 channels, batches averaged ~700 messages.
+//
 // Retained messages: with skip_retained (the default) messages the broker marks retained
 // — stored values it replays when a subscription is made — are counted and not passed
 // to the handler: a retained sample is an old value that would get a new arrival time.
@@ -152,6 +156,7 @@ class MosquittoClient final : public MessageBus {
   MosquittoClient& operator=(const MosquittoClient&) = delete;
 
   void SetMessageHandler(MessageHandler handler) override;
+  void SetBatchEndHandler(BatchEndHandler handler) override;
   void SetConnectionHandler(ConnectionHandler handler) override;
   core::Status Start() override;
   void Stop() override;
@@ -179,6 +184,9 @@ class MosquittoClient final : public MessageBus {
   bool WaitBackoff(int failures);
   // Sends the outbox while connected (network thread).
   void FlushOutbox();
+  // Calls the batch-end handler if messages were handled since the last call (network
+  // thread).
+  void EndBatch();
   // Publishes one message through libmosquitto; mutex_ held.
   core::Status SendLocked(const std::string& topic, std::string_view payload, int qos, bool retain);
   std::string BrokerName() const;
@@ -196,11 +204,13 @@ class MosquittoClient final : public MessageBus {
 
   // Set before Start(), read-only afterwards (the thread start orders them).
   MessageHandler message_handler_;
+  BatchEndHandler batch_end_handler_;
   ConnectionHandler connection_handler_;
 
   std::thread thread_;
   // Touched by the network thread only.
   int failures_in_row_ = 0;
+  std::size_t batch_messages_ = 0;  // messages handled since the last batch end
   bool attempt_connected_ = false;  // the current attempt got an accepted CONNACK
   bool attempt_refused_ = false;    // the current attempt got a refusing CONNACK
   std::mt19937_64 jitter_rng_;

@@ -5,10 +5,12 @@
 #include <cstdint>
 #include <limits>
 #include <nlohmann/json.hpp>
+#include <optional>
 #include <system_error>
 #include <utility>
 
 #include "core/timestamp_format.h"
+#include "mqtt/internal/flat_json.h"
 #include "mqtt/internal/text.h"
 
 namespace nightjar::mqtt {
@@ -226,6 +228,7 @@ core::Result<PayloadParser> PayloadParser::Create(PayloadFormat format) {
   if (format.encoding == PayloadEncoding::kJson) {
     SplitPath(format.value_field, &parser.value_path_, &column);
     if (!format.time_field.empty()) SplitPath(format.time_field, &parser.time_path_, &column);
+    parser.flat_fields_ = parser.value_path_.size() == 1 && parser.time_path_.size() <= 1;
   }
   parser.format_ = std::move(format);
   return parser;
@@ -233,6 +236,20 @@ core::Result<PayloadParser> PayloadParser::Create(PayloadFormat format) {
 
 core::Result<ParsedSample> PayloadParser::Parse(std::string_view topic, std::string_view payload,
                                                 core::TimestampUs arrival) const {
+  if (flat_fields_ && payload.size() <= format_.max_payload_bytes) {
+    const internal::FlatJsonFields fields{.value_key = format_.value_field,
+                                          .time_key = format_.time_field,
+                                          .time_encoding = format_.time_encoding};
+    if (std::optional<ParsedSample> sample = internal::ScanFlatJson(payload, fields, arrival)) {
+      return *sample;
+    }
+  }
+  return ParseWithFullJsonParser(topic, payload, arrival);
+}
+
+core::Result<ParsedSample> PayloadParser::ParseWithFullJsonParser(std::string_view topic,
+                                                                  std::string_view payload,
+                                                                  core::TimestampUs arrival) const {
   if (payload.size() > format_.max_payload_bytes) {
     return core::Status::InvalidArgument(
         internal::TopicPrefix(topic) + "payload of " + std::to_string(payload.size()) +

@@ -89,8 +89,16 @@ class PayloadParser {
 
   // The sample in `payload`, received on `topic` at `arrival`; InvalidArgument
   // "topic <topic>: ..." when the payload does not fit the format.
+  // A kJson payload whose fields are single keys is first read by a scanner for flat
+  // objects (mqtt/internal/flat_json.h), which gives up on anything it does not fully
+  // understand; the full JSON parser decides those, so results and errors are the same.
   core::Result<ParsedSample> Parse(std::string_view topic, std::string_view payload,
                                    core::TimestampUs arrival) const;
+  // Parse() without the flat-object scanner: every kJson payload goes through the full
+  // JSON parser (what the differential test compares the scanner with).
+  core::Result<ParsedSample> ParseWithFullJsonParser(std::string_view topic,
+                                                     std::string_view payload,
+                                                     core::TimestampUs arrival) const;
 
   const PayloadFormat& format() const { return format_; }
 
@@ -100,6 +108,7 @@ class PayloadParser {
   PayloadFormat format_;
   std::vector<std::string> value_path_;  // value_field split at '.'
   std::vector<std::string> time_path_;   // time_field split at '.', empty if none
+  bool flat_fields_ = false;             // kJson, value and time fields are single keys
 };
 
 // A kNumber text as described above. InvalidArgument quoting the text (shortened, control

@@ -54,22 +54,35 @@ WorkerCounters EngineWorker::counters() const {
   return c;
 }
 
-bool EngineWorker::Offer(SampleItem&& sample) {
-  const auto hole = open_holes_.empty() ? open_holes_.end() : open_holes_.find(sample.channel);
-  if (queue_.TryPush(std::move(sample))) {
-    if (hole != open_holes_.end()) open_holes_.erase(hole);
-    return true;
+std::size_t EngineWorker::OfferBatch(std::vector<SampleItem>& samples) {
+  // Channels of the batch with an open hole, noted before the queue takes (moves) the
+  // samples: an accepted one closes its hole. Holes are rare, so this is mostly skipped.
+  hole_candidates_.clear();
+  if (!open_holes_.empty()) {
+    for (std::size_t i = 0; i < samples.size(); ++i) {
+      if (open_holes_.find(samples[i].channel) != open_holes_.end()) {
+        hole_candidates_.emplace_back(i, samples[i].channel);
+      }
+    }
   }
-  if (hole == open_holes_.end()) {  // the first drop of this hole: mark where it starts
-    open_holes_.insert(sample.channel);
-    holes_.fetch_add(1, std::memory_order_relaxed);
-    queue_.PushMarker(SampleItem{.channel = std::move(sample.channel),
-                                 .time = sample.time,
-                                 .value = 0.0,
-                                 .arrived = sample.arrived,
-                                 .hole = true});
+  const std::size_t taken = queue_.TryPushBatch(samples);
+  // The accepted samples are the batch's first `taken`, so closing holes before opening
+  // new ones is the order of offering the samples one at a time.
+  for (const auto& [index, channel] : hole_candidates_) {
+    if (index < taken) open_holes_.erase(channel);
   }
-  return false;
+  for (std::size_t i = taken; i < samples.size(); ++i) {
+    const SampleItem& sample = samples[i];
+    if (open_holes_.insert(sample.channel).second) {  // the first drop of this hole
+      holes_.fetch_add(1, std::memory_order_relaxed);
+      queue_.PushMarker(SampleItem{.channel = sample.channel,
+                                   .time = sample.time,
+                                   .value = 0.0,
+                                   .arrived = sample.arrived,
+                                   .hole = true});
+    }
+  }
+  return taken;
 }
 
 void EngineWorker::Run() {
@@ -92,13 +105,13 @@ void EngineWorker::Run() {
         stopping = true;  // after the samples already queued
       }
     }
-    for (const SampleItem& sample : samples) HandleSample(sample, now);
+    HandleSamples(samples, now);
     if (now >= last_sweep_ + kSweepPeriodUs || now < last_sweep_) Sweep(now, false);
   }
   // Whatever arrived between the stop request and now (the intake is closed by then).
   queue_.PopAll(std::chrono::milliseconds(0), samples, controls);
   const core::TimestampUs now = clock_();
-  for (const SampleItem& sample : samples) HandleSample(sample, now);
+  HandleSamples(samples, now);
   Sweep(now, /*flush=*/true);
   Checkpoint("stop");
 }
@@ -133,12 +146,25 @@ void EngineWorker::HandleHole(const SampleItem& marker) {
   }
 }
 
-void EngineWorker::HandleSample(const SampleItem& sample, core::TimestampUs now) {
+void EngineWorker::HandleSamples(const std::vector<SampleItem>& samples, core::TimestampUs now) {
+  // Every channel is looked up first, in one tight loop: with thousands of channels a
+  // lookup is mostly a cache miss, and independent lookups back to back let the CPU wait
+  // for many misses at once instead of one per sample between two model updates.
+  ids_.resize(samples.size());
+  for (std::size_t i = 0; i < samples.size(); ++i) {
+    ids_[i] = samples[i].hole ? std::nullopt : engine_.FindChannel(samples[i].channel);
+  }
+  for (std::size_t i = 0; i < samples.size(); ++i) HandleSample(samples[i], ids_[i], now);
+}
+
+void EngineWorker::HandleSample(const SampleItem& sample, std::optional<core::ChannelId> id,
+                                core::TimestampUs now) {
   if (sample.hole) {
     HandleHole(sample);
     return;
   }
-  std::optional<core::ChannelId> id = engine_.FindChannel(sample.channel);
+  // Not found before the batch: an earlier sample of it may have added it since.
+  if (!id) id = engine_.FindChannel(sample.channel);
   if (!id && state_.LoadNewChannel(engine_, sample.channel)) {
     id = engine_.FindChannel(sample.channel);
     TrackChannels(state_.loads_from_save_dir());

@@ -1,8 +1,8 @@
 // EngineWorker: one engine thread owning a shard of the channels.
 //
-// The network thread Offer()s samples (never blocking: a full queue refuses them and the
-// caller counts the drop) and hands over control items (operator commands, config
-// reloads) that always get through. The hole a drop leaves in a channel's stream is
+// The network thread offers samples in batches (OfferBatch; never blocking: a full queue
+// refuses them and the caller counts the drop) and hands over control items (operator commands,
+// config reloads) that always get through. The hole a drop leaves in a channel's stream is
 // nightjar's fault, not the sensor's: the first drop of a hole queues a marker behind the
 // channel's last accepted sample (one per channel until one of its samples is accepted
 // again, so at most one per channel), and the worker, reaching it, tells the engine
@@ -45,8 +45,8 @@
 // samples, never inside one. A channel loaded from a file publishes its state at its first
 // sample; one reset by a reload is written fresh at the next checkpoint.
 //
-// Thread-safety: Offer from one thread at a time (the network thread: the runtime calls
-// it under its handler lock); PushControl and counters() from any thread; Start and
+// Thread-safety: OfferBatch from one thread at a time (the network thread: the
+// runtime calls it under its handler lock); PushControl and counters() from any thread; Start and
 // StopAndJoin from the owner's thread. The engine and per-channel bookkeeping are touched
 // by the worker thread only. Ownership: owns its engine, queue and thread; borrows the bus,
 // which must outlive StopAndJoin().
@@ -58,9 +58,11 @@
 #include <cstdint>
 #include <functional>
 #include <memory>
+#include <optional>
 #include <string>
 #include <thread>
 #include <unordered_set>
+#include <utility>
 #include <variant>
 #include <vector>
 
@@ -80,7 +82,7 @@ struct SampleItem {
   core::TimestampUs time = 0;
   double value = 0.0;
   std::chrono::steady_clock::time_point arrived{};  // at the network thread, for latency
-  // Not a sample but a hole marker: samples of `channel` were dropped here (Offer).
+  // Not a sample but a hole marker: samples of `channel` were dropped here (OfferBatch).
   bool hole = false;
 };
 struct CommandItem {
@@ -124,9 +126,11 @@ class EngineWorker {
   EngineWorker& operator=(const EngineWorker&) = delete;
 
   void Start();
-  // False when the queue is full: the sample is dropped (the caller counts it) and, at a
-  // hole's first drop, the hole marker is queued.
-  bool Offer(SampleItem&& sample);
+  // Offers a batch in one queue hand-over (one lock, at most one wake-up): samples from
+  // the front are queued while there is room; returns how many. The rest,
+  // samples[returned..], are dropped (left unmoved for the caller to count) and, at a
+  // hole's first drop, the channel's hole marker is queued.
+  std::size_t OfferBatch(std::vector<SampleItem>& samples);
   void PushControl(ControlItem item) { queue_.PushControl(std::move(item)); }
   void StopAndJoin();
 
@@ -149,7 +153,11 @@ class EngineWorker {
   };
 
   void Run();
-  void HandleSample(const SampleItem& sample, core::TimestampUs now);
+  // The samples of one PopAll, in order.
+  void HandleSamples(const std::vector<SampleItem>& samples, core::TimestampUs now);
+  // `id`: the channel's id looked up before the batch, or nullopt if it had none then.
+  void HandleSample(const SampleItem& sample, std::optional<core::ChannelId> id,
+                    core::TimestampUs now);
   void HandleHole(const SampleItem& marker);
   // Grows the per-channel vectors to the engine's channel count; new ones are unsaved
   // unless `saved` (loaded from the state folder itself).
@@ -170,7 +178,7 @@ class EngineWorker {
   WorkQueue<SampleItem, ControlItem> queue_;
   std::thread thread_;
 
-  // Offer's thread only: channels with samples dropped since their last accepted one.
+  // OfferBatch's thread only: channels with samples dropped since their last accepted one.
   struct NameHash {
     using is_transparent = void;
     std::size_t operator()(std::string_view name) const {
@@ -178,6 +186,7 @@ class EngineWorker {
     }
   };
   std::unordered_set<std::string, NameHash, std::equal_to<>> open_holes_;
+  std::vector<std::pair<std::size_t, std::string>> hole_candidates_;  // OfferBatch scratch
 
   // Worker thread only:
   std::shared_ptr<const config::LoadedConfig> config_;
@@ -185,6 +194,7 @@ class EngineWorker {
   std::vector<ChannelView> views_;
   std::vector<char> unsaved_;  // by ChannelId: changed since its last checkpoint
   std::vector<core::Alert> alerts_;
+  std::vector<std::optional<core::ChannelId>> ids_;  // HandleSamples: by sample
   std::string topic_;
   std::string payload_;
   core::TimestampUs newest_time_ = 0;  // newest sample time seen

@@ -31,8 +31,13 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
     runtime->workers_.push_back(std::make_unique<EngineWorker>(
         i, config, topics, self->options_.queue_capacity, bus, self->clock_, state));
   }
+  runtime->pending_.resize(runtime->workers_.size());
   bus.SetMessageHandler([self](std::string_view topic, std::string_view payload) {
     self->OnMessage(topic, payload);
+  });
+  bus.SetBatchEndHandler([self] {
+    const std::lock_guard lock(self->handler_mutex_);
+    if (self->accepting_) self->FlushSamples();
   });
   bus.SetConnectionHandler([self](bool connected) {
     if (connected) {
@@ -116,26 +121,45 @@ bool Runtime::IsOwnTopic(std::string_view topic) const {
 
 void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double value) {
   received_.fetch_add(1, std::memory_order_relaxed);
-  EngineWorker& worker = *workers_[ShardFor(channel, workers_.size())];
-  if (worker.Offer(
-          SampleItem{std::string(channel), time, value, std::chrono::steady_clock::now(), false})) {
-    return;
-  }
-  dropped_.fetch_add(1, std::memory_order_relaxed);
-  mqtt::BadPayloadLog::Decision d;
-  {
-    const std::lock_guard lock(drops_mutex_);
-    d = drops_.Record(channel, clock_());
-  }
-  if (d.log_now) {
-    spdlog::warn(
-        "worker queue full: dropped a sample of {} ({} dropped on it so far, {} since "
-        "the last report)",
-        channel, d.total, d.suppressed + 1);
+  const std::size_t shard = ShardFor(channel, workers_.size());
+  std::vector<SampleItem>& batch = pending_[shard];
+  batch.push_back(
+      SampleItem{std::string(channel), time, value, std::chrono::steady_clock::now(), false});
+  if (batch.size() >= kMaxBatch) FlushShard(shard);
+}
+
+void Runtime::FlushSamples() {
+  for (std::size_t shard = 0; shard < pending_.size(); ++shard) {
+    if (!pending_[shard].empty()) FlushShard(shard);
   }
 }
 
+void Runtime::FlushShard(std::size_t shard) {
+  std::vector<SampleItem>& batch = pending_[shard];
+  const std::size_t taken = workers_[shard]->OfferBatch(batch);
+  if (taken < batch.size()) {
+    dropped_.fetch_add(batch.size() - taken, std::memory_order_relaxed);
+    const core::TimestampUs now = clock_();
+    for (std::size_t i = taken; i < batch.size(); ++i) {
+      const std::string& channel = batch[i].channel;
+      mqtt::BadPayloadLog::Decision d;
+      {
+        const std::lock_guard lock(drops_mutex_);
+        d = drops_.Record(channel, now);
+      }
+      if (d.log_now) {
+        spdlog::warn(
+            "worker queue full: dropped a sample of {} ({} dropped on it so far, {} since "
+            "the last report)",
+            channel, d.total, d.suppressed + 1);
+      }
+    }
+  }
+  batch.clear();
+}
+
 void Runtime::OnCommand(std::string_view payload) {
+  FlushSamples();  // samples that came before the command are not held back behind it
   commands_.fetch_add(1, std::memory_order_relaxed);
   ParsedCommand parsed = ParseOperatorCommand(payload);
   if (!parsed.status.ok()) {
@@ -243,6 +267,7 @@ void Runtime::Stop() {
   stopping_.store(true);
   {
     const std::lock_guard lock(handler_mutex_);
+    if (accepting_) FlushSamples();  // a batch cut short by the stop is still processed
     accepting_ = false;
   }
   for (auto& worker : workers_) worker->StopAndJoin();

@@ -1,9 +1,12 @@
 // Runtime: the MQTT daemon's moving parts, wired together. `nightjar run` creates one.
 //
 // Threads. The bus's network thread runs the message handler and never computes: for a
-// sample topic it maps and parses the payload (SampleIntake) and offers the sample to the
-// worker owning the channel (ShardFor: a stable hash of the name), never blocking: a full
-// queue drops the sample, counted per channel and logged rate-limited. A message on the
+// sample topic it maps and parses the payload (SampleIntake) and collects the sample for
+// the worker owning the channel (ShardFor: a stable hash of the name); at the end of the
+// bus's batch (MessageBus's batch-end handler: what one network read delivered), before
+// a command, and when a worker's share of a batch reaches kMaxBatch, it offers each
+// worker its samples in one queue hand-over, never blocking: a full queue drops the
+// samples that do not fit, counted per channel and logged rate-limited. A message on the
 // command topic is parsed and validated there; messages on the daemon's own output topics
 // (a broad subscription can cover them) are ignored; an invalid command is answered at once on
 // the reply topic, a valid one goes to the owning worker's queue, which applies it and
@@ -84,9 +87,16 @@ class Runtime {
   bool ready() const;
 
  private:
+  // Most samples collected for one worker before they are offered within a batch.
+  static constexpr std::size_t kMaxBatch = 1024;
+
   Runtime(ServiceOptions options, mqtt::MessageBus& bus, Clock clock);
   void OnMessage(std::string_view topic, std::string_view payload);
   void OnSample(std::string_view channel, core::TimestampUs time, double value);
+  // Offers every worker the samples collected for it; handler_mutex_ held.
+  void FlushSamples();
+  // Offers worker `shard` its collected samples and counts the drops; handler_mutex_ held.
+  void FlushShard(std::size_t shard);
   void OnCommand(std::string_view payload);
   // Whether `topic` is one the daemon publishes (status, replies, alerts, state).
   bool IsOwnTopic(std::string_view topic) const;
@@ -107,6 +117,8 @@ class Runtime {
 
   std::mutex handler_mutex_;  // held by OnMessage; Stop() takes it to close the intake
   bool accepting_ = false;    // guarded by handler_mutex_
+  // Guarded by handler_mutex_: samples of the current batch, by worker, not yet offered.
+  std::vector<std::vector<SampleItem>> pending_;
 
   mutable std::mutex intake_mutex_;
   std::uint64_t retired_bad_payloads_ = 0;  // guarded by intake_mutex_: of replaced intakes

@@ -77,26 +77,50 @@ CheckpointResult WorkerStateStore::Save(const core::Engine& engine, std::string_
   CheckpointResult result;
   if (!saves()) return result;
   const auto start = std::chrono::steady_clock::now();
+  written_.clear();
+  const auto fail = [&](const core::Status& problem) {
+    // The old checkpoint of that channel stays; the next one tries again. One line
+    // per checkpoint: a full disk must not write a line per channel.
+    if (++result.failed == 1) {
+      spdlog::error("worker {}: checkpoint ({}): {}", index_, why, problem.message());
+    }
+  };
+  const core::Status folder = state::CreateStateDirectory(options_.save_dir);
   for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
     const bool flagged = unsaved != nullptr && id < unsaved->size();
     if (flagged && (*unsaved)[id] == 0) {
       ++result.unchanged;
       continue;
     }
+    if (!folder.ok()) {
+      fail(folder);
+      continue;
+    }
     bytes_.clear();
     engine.SaveChannel(id, bytes_);
     const core::Status written =
-        state::WriteStateFile(options_.save_dir, engine.channel_name(id), bytes_);
+        state::WriteStateFileUnsynced(options_.save_dir, engine.channel_name(id), bytes_);
     if (written.ok()) {
-      ++result.written;
+      written_.push_back(id);
       result.bytes += bytes_.size();
-      if (flagged) (*unsaved)[id] = 0;
     } else {
-      // The old checkpoint of that channel stays; the next one tries again. One line
-      // per checkpoint: a full disk must not write a line per channel.
-      if (++result.failed == 1)
-        spdlog::error("worker {}: checkpoint ({}): {}", index_, why, written.message());
+      fail(written);
     }
+  }
+  // One folder fsync for the whole checkpoint makes every rename above durable; if it
+  // fails, none of them is known to be on disk, so they count as failed and stay unsaved.
+  const core::Status synced =
+      written_.empty() ? core::Status::Ok() : state::SyncStateDirectory(options_.save_dir);
+  if (synced.ok()) {
+    result.written = written_.size();
+    if (unsaved != nullptr) {
+      for (const core::ChannelId id : written_) {
+        if (id < unsaved->size()) (*unsaved)[id] = 0;
+      }
+    }
+  } else {
+    result.bytes = 0;
+    for (std::size_t i = 0; i < written_.size(); ++i) fail(synced);
   }
   result.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   spdlog::info(

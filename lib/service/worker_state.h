@@ -46,8 +46,9 @@ class WorkerStateStore {
   // For a channel the engine does not have yet: loads its file when there is one that
   // LoadAtStart did not already look at. Whether the engine now has the channel.
   bool LoadNewChannel(core::Engine& engine, std::string_view channel);
-  // Writes every channel of `engine` to save_dir (temp file, fsync, rename); one log
-  // line (`why`: "interval", "stop"), and one per failed file. Nothing without save_dir.
+  // Writes every channel of `engine` to save_dir (temp file, fsync, rename each, then one
+  // fsync of the folder for all); one log line (`why`: "interval", "stop"), and one for
+  // the first failure. Nothing without save_dir.
   // With `unsaved` (a flag by ChannelId; an id past its end counts as set) only channels
   // whose flag is set are written, and a written one's flag is cleared: a channel that has
   // not changed since its last checkpoint has that state on disk already. A failed write
@@ -64,8 +65,9 @@ class WorkerStateStore {
 
   const int index_;
   const WorkerStateOptions options_;
-  std::set<std::string> looked_at_;  // files of load_dir already tried
-  std::vector<std::uint8_t> bytes_;  // reused by Save
+  std::set<std::string> looked_at_;       // files of load_dir already tried
+  std::vector<std::uint8_t> bytes_;       // reused by Save
+  std::vector<core::ChannelId> written_;  // Save: renamed, waiting for the folder fsync
 };
 
 }  // namespace nightjar::service

@@ -91,11 +91,15 @@ std::string StateFileName(std::string_view channel) {
   return name;
 }
 
-core::Status WriteStateFile(const std::string& dir, std::string_view channel,
-                            std::span<const std::uint8_t> bytes) {
+core::Status CreateStateDirectory(const std::string& dir) {
   std::error_code error;
   fs::create_directories(dir, error);
   if (error) return core::Status::Unavailable(dir + ": cannot create: " + error.message());
+  return core::Status::Ok();
+}
+
+core::Status WriteStateFileUnsynced(const std::string& dir, std::string_view channel,
+                                    std::span<const std::uint8_t> bytes) {
   const std::string path = (fs::path(dir) / StateFileName(channel)).string();
   const std::string temp = path + ".tmp";
   const int fd = ::open(temp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
@@ -106,26 +110,43 @@ core::Status WriteStateFile(const std::string& dir, std::string_view channel,
   if (status.ok() && std::rename(temp.c_str(), path.c_str()) != 0) {
     status = ErrnoStatus("rename to " + path, temp);
   }
-  if (!status.ok()) {
-    ::unlink(temp.c_str());
-    return status;
-  }
-  // The rename is durable only once the folder itself is on disk.
+  if (!status.ok()) ::unlink(temp.c_str());
+  return status;
+}
+
+core::Status SyncStateDirectory(const std::string& dir) {
   const int dir_fd = ::open(dir.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
   if (dir_fd < 0) return ErrnoStatus("open", dir);
+  core::Status status;
   if (::fsync(dir_fd) != 0) status = ErrnoStatus("fsync", dir);
   ::close(dir_fd);
   return status;
 }
 
+core::Status WriteStateFile(const std::string& dir, std::string_view channel,
+                            std::span<const std::uint8_t> bytes) {
+  if (core::Status s = CreateStateDirectory(dir); !s.ok()) return s;
+  if (core::Status s = WriteStateFileUnsynced(dir, channel, bytes); !s.ok()) return s;
+  // The rename is durable only once the folder itself is on disk.
+  return SyncStateDirectory(dir);
+}
+
 core::Status SaveEngineState(const core::Engine& engine, const std::string& dir) {
+  if (core::Status s = CreateStateDirectory(dir); !s.ok()) return s;
   core::Status first;
   std::vector<std::uint8_t> bytes;
+  bool renamed = false;
   for (core::ChannelId id = 0; id < engine.channel_count(); ++id) {
     bytes.clear();
     engine.SaveChannel(id, bytes);
-    core::Status written = WriteStateFile(dir, engine.channel_name(id), bytes);
+    core::Status written = WriteStateFileUnsynced(dir, engine.channel_name(id), bytes);
+    renamed = renamed || written.ok();
     if (!written.ok() && first.ok()) first = std::move(written);
+  }
+  // One folder fsync makes every rename above durable.
+  if (renamed) {
+    core::Status synced = SyncStateDirectory(dir);
+    if (!synced.ok() && first.ok()) first = std::move(synced);
   }
   return first;
 }

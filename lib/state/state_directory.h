@@ -8,7 +8,9 @@
 // and two channels never share a file.
 //
 // Saving writes <file>.tmp, fsyncs it, renames it over <file> and fsyncs the folder, so
-// a crash leaves the old checkpoint or the new one, never half of one. Loading never
+// a crash leaves the old checkpoint or the new one, never half of one. Writing many files
+// at once (a checkpoint) fsyncs the folder once after all the renames: until then a crash
+// may leave some of them at their old checkpoint, each still whole. Loading never
 // throws and never stops at a bad file: every file gets a LoadEntry saying what became
 // of it. Thread-safety: functions use only their arguments; do not save one directory
 // from two threads at once. Ownership: plain values.
@@ -31,12 +33,23 @@ inline constexpr std::string_view kStateFileSuffix = ".njstate";
 
 std::string StateFileName(std::string_view channel);
 
-// Writes `bytes` as the checkpoint of `channel` in `dir` (created if missing).
+// Writes `bytes` as the checkpoint of `channel` in `dir` (created if missing), durably:
+// CreateStateDirectory, WriteStateFileUnsynced, SyncStateDirectory.
 core::Status WriteStateFile(const std::string& dir, std::string_view channel,
                             std::span<const std::uint8_t> bytes);
 
-// Checkpoints every channel of `engine` into `dir`; the first failure is returned, the
-// other channels are still written.
+// Creates `dir` (and its parents) if missing; Unavailable naming it when that fails.
+core::Status CreateStateDirectory(const std::string& dir);
+// Writes `bytes` as the checkpoint of `channel` in the existing folder `dir`: temp file,
+// fsync, rename over the file (the temp file is removed on failure). The new file is
+// whole at once, but the rename is durable only after SyncStateDirectory(dir).
+core::Status WriteStateFileUnsynced(const std::string& dir, std::string_view channel,
+                                    std::span<const std::uint8_t> bytes);
+// fsyncs the folder itself, making every rename done in it so far durable.
+core::Status SyncStateDirectory(const std::string& dir);
+
+// Checkpoints every channel of `engine` into `dir`, with one folder fsync at the end;
+// the first failure is returned, the other channels are still written.
 core::Status SaveEngineState(const core::Engine& engine, const std::string& dir);
 
 enum class LoadOutcome {

@@ -1,8 +1,8 @@
 // Cost of one worker checkpoint of the daemon (service/worker_state.h): every channel of
 // an engine with default options (H = 32, W = 32, time-of-day features) encoded and
-// written to a state folder (temp file, fsync, rename, folder fsync per channel), as
-// `nightjar run` does on stop and every daemon.checkpoint_interval_s. Real time, since
-// the fsyncs are most of it; the folder is under $TMPDIR (default /tmp), so the number
+// written to a state folder (temp file, fsync, rename per channel, then one folder fsync
+// for the checkpoint), as `nightjar run` does on stop and every daemon.checkpoint_interval_s. Real
+// time, since the fsyncs are most of it; the folder is under $TMPDIR (default /tmp), so the number
 // is that file system's. Counters: channels, bytes_per_channel, ms_per_checkpoint.
 // BM_WorkerCheckpoint writes every channel (what a checkpoint cost before the worker kept
 // track of changed channels); BM_WorkerCheckpointChanged/<channels>/<percent> writes only

@@ -2,10 +2,11 @@
 //
 // It records what is published and subscribed, delivers messages a test injects (only if
 // a subscribed filter matches, as a broker would), and lets the test connect and
-// disconnect it. Handlers run on the thread that calls Deliver() / SetConnected(), not on
-// a network thread. Outbox behaviour is the real client's in miniature: while
-// disconnected, QoS >= 1 publishes are held (unbounded) and released in order on
-// connect; QoS 0 publishes are dropped and counted.
+// disconnect it. Deliver() is a batch of one, DeliverBatch() several messages followed by
+// one batch-end call. Handlers run on the thread that calls Deliver() / DeliverBatch() /
+// SetConnected(), not on a network thread. Outbox behaviour is the real client's in
+// miniature: while disconnected, QoS >= 1 publishes are held (unbounded) and released in
+// order on connect; QoS 0 publishes are dropped and counted.
 //
 // Thread-safety: all methods may be called from any thread; handlers are called without
 // the fake's lock held, so they may publish. Ownership: a plain object owned by the test.
@@ -44,6 +45,10 @@ class FakeBus final : public mqtt::MessageBus {
   void SetMessageHandler(mqtt::MessageHandler handler) override {
     std::lock_guard lock(mutex_);
     message_handler_ = std::move(handler);
+  }
+  void SetBatchEndHandler(mqtt::BatchEndHandler handler) override {
+    std::lock_guard lock(mutex_);
+    batch_end_handler_ = std::move(handler);
   }
   void SetConnectionHandler(mqtt::ConnectionHandler handler) override {
     std::lock_guard lock(mutex_);
@@ -131,21 +136,39 @@ class FakeBus final : public mqtt::MessageBus {
 
   // Test controls.
 
-  // Delivers a message as if from the broker; false (nothing delivered) if no
-  // subscribed filter matches `topic`.
+  // Delivers a message as if from the broker, as a batch of one (the batch-end handler
+  // follows); false (nothing delivered) if no subscribed filter matches `topic`.
   bool Deliver(std::string_view topic, std::string_view payload) {
+    return DeliverBatch({{std::string(topic), std::string(payload)}}) == 1;
+  }
+
+  // Delivers (topic, payload) messages as one batch: each one a subscribed filter matches
+  // goes to the message handler, in order, then the batch-end handler runs once if any
+  // did. Returns how many were delivered.
+  std::size_t DeliverBatch(const std::vector<std::pair<std::string, std::string>>& messages) {
     mqtt::MessageHandler handler;
+    mqtt::BatchEndHandler batch_end;
     {
       std::lock_guard lock(mutex_);
-      const bool subscribed = std::any_of(
-          subscriptions_.begin(), subscriptions_.end(),
-          [topic](const Subscribed& s) { return mqtt::TopicMatchesFilter(s.filter, topic); });
-      if (!subscribed || !connected_) return false;
-      ++stats_.messages_in;
+      if (!connected_) return 0;
       handler = message_handler_;
+      batch_end = batch_end_handler_;
     }
-    if (handler) handler(topic, payload);
-    return true;
+    std::size_t delivered = 0;
+    for (const auto& [topic, payload] : messages) {
+      {
+        std::lock_guard lock(mutex_);
+        const bool subscribed = std::any_of(
+            subscriptions_.begin(), subscriptions_.end(),
+            [&topic](const Subscribed& s) { return mqtt::TopicMatchesFilter(s.filter, topic); });
+        if (!subscribed) continue;
+        ++stats_.messages_in;
+      }
+      ++delivered;
+      if (handler) handler(topic, payload);
+    }
+    if (delivered > 0 && batch_end) batch_end();
+    return delivered;
   }
 
   // Connects (releasing the held publishes in order) or disconnects, calling the
@@ -182,6 +205,7 @@ class FakeBus final : public mqtt::MessageBus {
   const bool connect_on_start_;
   mutable std::mutex mutex_;
   mqtt::MessageHandler message_handler_;
+  mqtt::BatchEndHandler batch_end_handler_;
   mqtt::ConnectionHandler connection_handler_;
   bool started_ = false;
   bool stopped_ = false;

@@ -8,6 +8,7 @@
 #include <unistd.h>
 
 #include <array>
+#include <atomic>
 #include <cstdlib>
 #include <map>
 #include <mutex>
@@ -97,6 +98,13 @@ TEST(MosquittoClientTest, ReceivesMappedSamplesFromMosquittoPub) {
   ASSERT_TRUE(intake.ok()) << intake.status().message();
   auto client = MakeClient(FastOptions(b, "cw2-nightjar-in"));
   ASSERT_TRUE((*intake)->Attach(*client).ok());
+  // Batch ends, and how many samples had arrived at the latest one (network thread).
+  std::atomic<std::size_t> batch_ends{0};
+  std::atomic<std::size_t> samples_at_batch_end{0};
+  client->SetBatchEndHandler([&] {
+    ++batch_ends;
+    samples_at_batch_end.store(samples.size());
+  });
   ASSERT_TRUE(client->Start().ok());
   ASSERT_TRUE(WaitFor([&] { return client->stats().subscribe_acks >= 1; }))
       << client->stats().last_error;
@@ -131,6 +139,11 @@ TEST(MosquittoClientTest, ReceivesMappedSamplesFromMosquittoPub) {
   EXPECT_EQ(stats.messages_in, 100u);
   EXPECT_EQ(stats.retained_skipped, 1u);  // the 999 stored before we subscribed
   EXPECT_EQ((*intake)->stats().samples, 100u);
+  // The last message is followed by a batch end, and no batch end comes without one.
+  EXPECT_TRUE(WaitFor([&] { return samples_at_batch_end.load() == 100; }))
+      << samples_at_batch_end.load();
+  EXPECT_GE(batch_ends.load(), 1u);
+  EXPECT_LE(batch_ends.load(), 100u);
   client->Stop();
 }
 

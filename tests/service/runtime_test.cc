@@ -218,6 +218,64 @@ TEST(RuntimeTest, FullQueueDropsAndCountsWithoutBlockingTheNetworkThread) {
   EXPECT_EQ(rt.counters().dropped, 84u);
 }
 
+// The network thread hands a bus batch to a worker in one go at the batch's end: what
+// fits the queue is taken from the front, the rest is dropped and counted, with one hole
+// per channel that lost samples.
+TEST(RuntimeTest, ABatchIsHandedOverAtItsEndAndWhatDoesNotFitIsDroppedAndCounted) {
+  std::string text = kConfig;
+  text.replace(text.find("  workers: 3"), std::string("  workers: 3").size(),
+               "  workers: 1\n  queue_capacity: 16");
+  const auto config = Load(text);
+  ASSERT_TRUE(config);
+  core::Result<ServiceOptions> options = BuildServiceOptions(*config, "test.yaml", std::nullopt);
+  ASSERT_TRUE(options.ok()) << options.status().message();
+
+  // Holds the worker thread in its clock while the test thread delivers the batch.
+  const std::thread::id test_thread = std::this_thread::get_id();
+  std::mutex mutex;
+  std::condition_variable changed;
+  bool held = false;
+  bool release = false;
+  const Runtime::Clock clock = [&]() -> core::TimestampUs {
+    if (std::this_thread::get_id() != test_thread) {
+      std::unique_lock lock(mutex);
+      held = true;
+      changed.notify_all();
+      changed.wait(lock, [&] { return release; });
+    }
+    return Now();
+  };
+  testing::FakeBus bus;
+  auto runtime = Runtime::Create(*options, config, bus, clock);
+  ASSERT_TRUE(runtime.ok()) << runtime.status().message();
+  Runtime& rt = **runtime;
+  ASSERT_TRUE(rt.Start().ok());
+  {
+    std::unique_lock lock(mutex);
+    ASSERT_TRUE(changed.wait_for(lock, std::chrono::seconds(10), [&] { return held; }));
+  }
+  // 50 samples of each of two channels, interleaved, in one batch: the first 16 fit.
+  std::vector<std::pair<std::string, std::string>> batch;
+  for (int i = 0; i < 50; ++i) {
+    batch.emplace_back("cw2/pump_a/flow", Sample(i, 50.0));
+    batch.emplace_back("cw2/pump_b/flow", Sample(i, 40.0));
+  }
+  ASSERT_EQ(bus.DeliverBatch(batch), 100u);
+  EXPECT_EQ(rt.counters().dropped, 84u);
+  EXPECT_EQ(rt.counters().drop_holes, 2u) << "one hole per channel";
+  EXPECT_EQ(rt.metrics().samples_received, 100u);
+  {
+    const std::lock_guard lock(mutex);
+    release = true;
+  }
+  changed.notify_all();
+  ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 16; }, std::chrono::seconds(10)));
+  EXPECT_EQ(rt.counters().channels, 2);
+  rt.Stop();
+  EXPECT_EQ(rt.counters().samples, 16u);
+  EXPECT_EQ(rt.counters().dropped, 84u);
+}
+
 // The hole that dropped samples leave in a channel's stream is nightjar's own: no gap
 // alarm for it, one hole counted on the status and the metrics. The same silence with no
 // drop behind it is a gap (gap_periods 3 on a 1 s channel: no sample for more than 3 s;

@@ -8,6 +8,7 @@
 #include <unistd.h>
 #include <zlib.h>
 
+#include <algorithm>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -214,6 +215,44 @@ TEST_F(StateDirectoryTest, OverwriteReplacesTheCheckpoint) {
   Engine engine(SmallModel());
   EXPECT_EQ(LoadEngineState(engine, dir_).loaded(), 2U);
   EXPECT_EQ(engine.channel_status(*engine.FindChannel(kChannels[0])).samples, 700);
+}
+
+// A checkpoint of many files renames each whole file into place and syncs the folder
+// once: every file loads, no temp file is left, and a nested folder is created.
+TEST_F(StateDirectoryTest, CheckpointLeavesWholeFilesAndNoTempFiles) {
+  const std::string nested = dir_ + "/a/b";
+  Engine engine(SmallModel());
+  Feed(engine, 400);
+  ASSERT_TRUE(SaveEngineState(engine, nested).ok());
+  std::vector<std::string> names;
+  for (const auto& entry : fs::directory_iterator(nested)) {
+    names.push_back(entry.path().filename().string());
+  }
+  std::sort(names.begin(), names.end());
+  EXPECT_EQ(names,
+            (std::vector<std::string>{StateFileName(kChannels[0]), StateFileName(kChannels[1])}));
+  Engine loaded(SmallModel());
+  EXPECT_EQ(LoadEngineState(loaded, nested).loaded(), 2U);
+}
+
+TEST_F(StateDirectoryTest, FailedWritesNameTheirPathAndLeaveNothing) {
+  const std::vector<std::uint8_t> bytes = {1, 2, 3};
+  // The unsynced write does not create folders: the caller made it (CreateStateDirectory).
+  const core::Status unsynced = WriteStateFileUnsynced(dir_ + "/nope", kChannels[0], bytes);
+  EXPECT_FALSE(unsynced.ok());
+  EXPECT_NE(unsynced.message().find(StateFileName(kChannels[0]) + ".tmp"), std::string::npos)
+      << unsynced.message();
+  EXPECT_FALSE(fs::exists(dir_ + "/nope"));
+  // A folder below a regular file cannot be created.
+  fs::create_directories(dir_);
+  Write(dir_ + "/plain", bytes);
+  const core::Status created = CreateStateDirectory(dir_ + "/plain/sub");
+  EXPECT_EQ(created.code(), core::StatusCode::kUnavailable);
+  EXPECT_NE(created.message().find("plain/sub"), std::string::npos) << created.message();
+  Engine engine(SmallModel());
+  Feed(engine, 10);
+  EXPECT_FALSE(SaveEngineState(engine, dir_ + "/plain/sub").ok());
+  EXPECT_FALSE(SyncStateDirectory(dir_ + "/plain/sub").ok());
 }
 
 }  // namespace
