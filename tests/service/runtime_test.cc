@@ -73,6 +73,43 @@ core::TimestampUs Now() {
       .count();
 }
 
+// A clock that holds any thread but the test's own (the worker reads the clock right
+// after taking its queue) until Release(), so the test thread can deliver into a queue
+// that nobody drains.
+class WorkerHoldingClock {
+ public:
+  Runtime::Clock clock() {
+    return [this]() -> core::TimestampUs {
+      if (std::this_thread::get_id() != test_thread_) {
+        std::unique_lock lock(mutex_);
+        held_ = true;
+        changed_.notify_all();
+        changed_.wait(lock, [&] { return release_; });
+      }
+      return Now();
+    };
+  }
+  // True once a worker waits inside the clock (within 10 s).
+  bool WaitUntilHeld() {
+    std::unique_lock lock(mutex_);
+    return changed_.wait_for(lock, std::chrono::seconds(10), [&] { return held_; });
+  }
+  void Release() {
+    {
+      const std::lock_guard lock(mutex_);
+      release_ = true;
+    }
+    changed_.notify_all();
+  }
+
+ private:
+  const std::thread::id test_thread_ = std::this_thread::get_id();
+  std::mutex mutex_;
+  std::condition_variable changed_;
+  bool held_ = false;     // the worker is waiting inside the clock
+  bool release_ = false;  // let it go
+};
+
 std::string Sample(int i, double value) {
   return std::string("{\"t\":")
       .append(std::to_string(1'780'000'000 + i))
@@ -182,36 +219,16 @@ TEST(RuntimeTest, FullQueueDropsAndCountsWithoutBlockingTheNetworkThread) {
   ASSERT_TRUE(options.ok()) << options.status().message();
   ASSERT_EQ(options->queue_capacity, 16u);
 
-  const std::thread::id test_thread = std::this_thread::get_id();
-  std::mutex mutex;
-  std::condition_variable changed;
-  bool held = false;     // the worker is waiting inside the clock
-  bool release = false;  // let it go
-  const Runtime::Clock clock = [&]() -> core::TimestampUs {
-    if (std::this_thread::get_id() != test_thread) {
-      std::unique_lock lock(mutex);
-      held = true;
-      changed.notify_all();
-      changed.wait(lock, [&] { return release; });
-    }
-    return Now();
-  };
+  WorkerHoldingClock holder;
   testing::FakeBus bus;
-  auto runtime = Runtime::Create(*options, config, bus, clock);
+  auto runtime = Runtime::Create(*options, config, bus, holder.clock());
   ASSERT_TRUE(runtime.ok()) << runtime.status().message();
   Runtime& rt = **runtime;
   ASSERT_TRUE(rt.Start().ok());
-  {
-    std::unique_lock lock(mutex);
-    ASSERT_TRUE(changed.wait_for(lock, std::chrono::seconds(10), [&] { return held; }));
-  }
+  ASSERT_TRUE(holder.WaitUntilHeld());
   for (int i = 0; i < 100; ++i) ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(i, 50.0)));
   EXPECT_EQ(rt.counters().dropped, 84u);
-  {
-    const std::lock_guard lock(mutex);
-    release = true;
-  }
-  changed.notify_all();
+  holder.Release();
   ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 16; }, std::chrono::seconds(10)));
   rt.Stop();
   EXPECT_EQ(rt.counters().samples, 16u);
@@ -231,29 +248,13 @@ TEST(RuntimeTest, ABatchIsHandedOverAtItsEndAndWhatDoesNotFitIsDroppedAndCounted
   ASSERT_TRUE(options.ok()) << options.status().message();
 
   // Holds the worker thread in its clock while the test thread delivers the batch.
-  const std::thread::id test_thread = std::this_thread::get_id();
-  std::mutex mutex;
-  std::condition_variable changed;
-  bool held = false;
-  bool release = false;
-  const Runtime::Clock clock = [&]() -> core::TimestampUs {
-    if (std::this_thread::get_id() != test_thread) {
-      std::unique_lock lock(mutex);
-      held = true;
-      changed.notify_all();
-      changed.wait(lock, [&] { return release; });
-    }
-    return Now();
-  };
+  WorkerHoldingClock holder;
   testing::FakeBus bus;
-  auto runtime = Runtime::Create(*options, config, bus, clock);
+  auto runtime = Runtime::Create(*options, config, bus, holder.clock());
   ASSERT_TRUE(runtime.ok()) << runtime.status().message();
   Runtime& rt = **runtime;
   ASSERT_TRUE(rt.Start().ok());
-  {
-    std::unique_lock lock(mutex);
-    ASSERT_TRUE(changed.wait_for(lock, std::chrono::seconds(10), [&] { return held; }));
-  }
+  ASSERT_TRUE(holder.WaitUntilHeld());
   // 50 samples of each of two channels, interleaved, in one batch: the first 16 fit.
   std::vector<std::pair<std::string, std::string>> batch;
   for (int i = 0; i < 50; ++i) {
@@ -264,11 +265,7 @@ TEST(RuntimeTest, ABatchIsHandedOverAtItsEndAndWhatDoesNotFitIsDroppedAndCounted
   EXPECT_EQ(rt.counters().dropped, 84u);
   EXPECT_EQ(rt.counters().drop_holes, 2u) << "one hole per channel";
   EXPECT_EQ(rt.metrics().samples_received, 100u);
-  {
-    const std::lock_guard lock(mutex);
-    release = true;
-  }
-  changed.notify_all();
+  holder.Release();
   ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 16; }, std::chrono::seconds(10)));
   EXPECT_EQ(rt.counters().channels, 2);
   rt.Stop();
@@ -292,39 +289,19 @@ TEST(RuntimeTest, SamplesDroppedAtAFullQueueRaiseNoGapAndAreCountedAsAHole) {
   ASSERT_TRUE(options.ok()) << options.status().message();
 
   // Holds the worker thread in its clock while the test thread overfills the queue.
-  const std::thread::id test_thread = std::this_thread::get_id();
-  std::mutex mutex;
-  std::condition_variable changed;
-  bool held = false;
-  bool release = false;
-  const Runtime::Clock clock = [&]() -> core::TimestampUs {
-    if (std::this_thread::get_id() != test_thread) {
-      std::unique_lock lock(mutex);
-      held = true;
-      changed.notify_all();
-      changed.wait(lock, [&] { return release; });
-    }
-    return Now();
-  };
+  WorkerHoldingClock holder;
   testing::FakeBus bus;
-  auto runtime = Runtime::Create(*options, config, bus, clock);
+  auto runtime = Runtime::Create(*options, config, bus, holder.clock());
   ASSERT_TRUE(runtime.ok()) << runtime.status().message();
   Runtime& rt = **runtime;
   ASSERT_TRUE(rt.Start().ok());
-  {
-    std::unique_lock lock(mutex);
-    ASSERT_TRUE(changed.wait_for(lock, std::chrono::seconds(10), [&] { return held; }));
-  }
+  ASSERT_TRUE(holder.WaitUntilHeld());
   // Samples 0..15 fit, 16..99 are dropped: an 85 s hole in the channel's stream.
   for (int i = 0; i < 100; ++i)
     ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(i, 50.0 + i % 3)));
   EXPECT_EQ(rt.counters().dropped, 84u);
   EXPECT_EQ(rt.counters().drop_holes, 1u) << "one hole, however many samples it lost";
-  {
-    const std::lock_guard lock(mutex);
-    release = true;
-  }
-  changed.notify_all();
+  holder.Release();
   ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 16; }, std::chrono::seconds(10)));
   for (int i = 100; i < 105; ++i) ASSERT_TRUE(bus.Deliver("cw2/pump_a/flow", Sample(i, 50.0)));
   ASSERT_TRUE(WaitFor([&] { return rt.counters().samples == 21; }, std::chrono::seconds(10)));
