@@ -36,6 +36,9 @@ constexpr Bounds None() { return {}; }
 const std::array kKeys = {
     KeySpec{"unit", NIGHTJAR_FIELD(unit), None(), "",
             "engineering unit shown in alert messages, e.g. \"m3/h\""},
+    KeySpec{"asset", NIGHTJAR_FIELD(asset), None(), "",
+            "asset whose anomaly alarms form one episode with this channel's; \"\" = the "
+            "name before its last dot, \"none\" = no grouping"},
     KeySpec{"sample_period_s", NIGHTJAR_FIELD(sample_period_s), AtLeast(0), "s",
             "nominal sample period; 0 estimates it from arrival times"},
     KeySpec{

@@ -47,6 +47,16 @@ struct Alert {
   double threshold = 0.0;  // the statistic's alarm threshold
   Priority priority = Priority::kMedium;
   std::string message;  // one line for a human
+
+  // Alarm grouping (core/alarm_episodes.h). Set on anomaly alarms of a channel that
+  // belongs to an asset; other alerts keep the defaults (annunciated, no episode).
+  // False when the edge joins or leaves an episode already annunciated on its asset
+  // (suppressed by design): published for dashboards, not for the annunciator.
+  bool annunciated = true;
+  std::string asset;              // the channel's asset; empty: grouped with no other
+  std::string episode_first_out;  // the channel whose raise opened the episode
+  TimestampUs episode_since = 0;  // that raise's time
+  int episode_active = 0;         // channels of the episode in alarm after this edge
 };
 
 // Stable lower-case names used on the wire and in files.

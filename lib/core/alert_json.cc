@@ -144,6 +144,32 @@ void AppendAlertJson(const Alert& alert, std::string* out) {
   AppendJsonString(PriorityName(alert.priority), out);
   AppendField("message", out);
   AppendJsonString(alert.message, out);
+  AppendField("annunciated", out);
+  out->append(alert.annunciated ? "true" : "false");
+  AppendField("episode", out);
+  if (alert.asset.empty()) {
+    out->append("null");
+  } else {
+    out->append(R"({"asset":)");
+    AppendJsonString(alert.asset, out);
+    AppendField("first_out", out);
+    if (alert.episode_first_out.empty()) {
+      out->append("null");
+    } else {
+      AppendJsonString(alert.episode_first_out, out);
+    }
+    AppendField("since", out);
+    if (alert.episode_first_out.empty()) {
+      out->append("null");
+    } else {
+      out->push_back('"');
+      AppendUtcTimestamp(alert.episode_since, SecondFraction::kMillis, out);
+      out->push_back('"');
+    }
+    AppendField("active", out);
+    out->append(std::to_string(alert.episode_active));
+    out->push_back('}');
+  }
   out->push_back('}');
 }
 

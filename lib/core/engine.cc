@@ -46,9 +46,30 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
   channels_.push_back(std::make_unique<ChannelPipeline>(std::string(name), options,
                                                         ChannelSeed(options_.seed, name)));
   options_of_.push_back(options);
+  asset_of_.push_back(AssetOfChannel(name, options.asset));
   ids_.emplace(std::string(name), id);
   channels_.back()->set_residual_tap(tap_, id);
   return id;
+}
+
+void Engine::Group(std::vector<Alert>& out, std::size_t from) {
+  for (std::size_t i = from; i < out.size(); ++i) {
+    Alert& alert = out[i];
+    if (alert.kind != AlertKind::kAnomaly) continue;  // annunciated, no episode: the defaults
+    const auto it = ids_.find(alert.channel);
+    episodes_.Annotate(it == ids_.end() ? std::string_view() : asset_of_[it->second], alert);
+  }
+}
+
+void Engine::RegroupRestored(ChannelId id) {
+  const std::string& asset = asset_of_[id];
+  const ChannelPipeline& channel = *channels_[id];
+  episodes_.NoteSilenced(asset, channel.name());
+  const Alarm& alarm = channel.alarm(AlarmCondition::kAnomaly);
+  if (alarm.active() && !alarm.silenced()) {
+    episodes_.NoteActive(asset, channel.name(), alarm.raised_at().value_or(0),
+                         options_of_[id].anomaly_priority);
+  }
 }
 
 std::size_t Engine::ConcludeKnownGood() {
@@ -75,6 +96,7 @@ Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options) {
       std::make_unique<ChannelPipeline>(name, options, ChannelSeed(options_.seed, name));
   channels_[channel]->set_residual_tap(tap_, channel);
   options_of_[channel] = options;
+  episodes_.NoteSilenced(asset_of_[channel], name);  // the new pipeline is in no alarm
   return Status::Ok();
 }
 
@@ -85,6 +107,7 @@ Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options, Ti
     return Status::InvalidArgument("channel '" + channels_[channel]->name() +
                                    "': " + valid.message());
   }
+  const std::size_t before = out.size();
   const ChannelPipeline& old = *channels_[channel];
   const ChannelOptions& was = options_of_[channel];
   const ChannelStatus status = old.status();
@@ -111,6 +134,7 @@ Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options, Ti
     alert.message.append(why);
     out.push_back(std::move(alert));
   }
+  Group(out, before);
   return ResetChannel(channel, options);
 }
 
@@ -155,8 +179,10 @@ void Engine::Process(const Sample& sample, std::vector<Alert>& out) {
 }
 
 void Engine::Process(ChannelId channel, TimestampUs time, double value, std::vector<Alert>& out) {
+  const std::size_t before = out.size();
   if (!clock_started_ || time >= clock_ + kGapSweepInterval) AdvanceClock(time, out);
   channels_[channel]->Process(time, value, designer_, *workspace_, out);
+  if (out.size() != before) Group(out, before);
 }
 
 void Engine::NoteDiscontinuity(ChannelId channel, Discontinuity reason) {
@@ -167,7 +193,9 @@ void Engine::AdvanceClock(TimestampUs now, std::vector<Alert>& out) {
   if (clock_started_ && now <= clock_) return;
   clock_started_ = true;
   clock_ = now;
+  const std::size_t before = out.size();
   for (auto& channel : channels_) channel->CheckGap(now, out);
+  if (out.size() != before) Group(out, before);
 }
 
 void Engine::SaveChannel(ChannelId id, std::vector<std::uint8_t>& out) const {
@@ -194,13 +222,16 @@ Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> 
     restored->set_residual_tap(tap_, *id);
     channels_[*id] = std::move(restored);
     options_of_[*id] = options;
+    RegroupRestored(*id);
     return Status::Ok();
   }
   const auto id = static_cast<ChannelId>(channels_.size());
   restored->set_residual_tap(tap_, id);
   channels_.push_back(std::move(restored));
   options_of_.push_back(options);  // channel_options(id) must hold for a loaded channel too
+  asset_of_.push_back(AssetOfChannel(name, options.asset));
   ids_.emplace(std::string(name), id);
+  RegroupRestored(id);
   return Status::Ok();
 }
 
@@ -219,14 +250,21 @@ Status Engine::Shelve(std::string_view channel, AlarmCondition condition, Timest
                       TimestampUs until) {
   Result<ChannelPipeline*> found = Find(channel);
   if (!found.ok()) return found.status();
-  return (*found)->Shelve(condition, now, until);
+  Status shelved = (*found)->Shelve(condition, now, until);
+  if (shelved.ok() && condition == AlarmCondition::kAnomaly) {
+    episodes_.NoteSilenced(asset_of_[ids_.find(channel)->second], channel);
+  }
+  return shelved;
 }
 
 Status Engine::Unshelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
                         std::vector<Alert>& out) {
   Result<ChannelPipeline*> found = Find(channel);
   if (!found.ok()) return found.status();
-  return (*found)->Unshelve(condition, now, out);
+  const std::size_t before = out.size();
+  Status unshelved = (*found)->Unshelve(condition, now, out);
+  Group(out, before);
+  return unshelved;
 }
 
 }  // namespace nightjar::core

@@ -4,8 +4,12 @@
 // deterministically: the same options, seed and input give the same alerts, bit for
 // bit, on one build. It owns every channel's pipeline and one scratch workspace for
 // model training, shared by its channels. No I/O, no clock: time comes with samples.
+// Anomaly alarms are grouped per asset (core/alarm_episodes.h): every alert the engine
+// appends has its annunciated and episode fields set. A channel's asset is fixed when the
+// channel is created (AddChannel, or LoadChannel of a new one), from its `asset` option.
 // Thread-safety: none. The daemon runs one Engine per worker thread, each owning a
-// shard of channels; replay runs one on one thread. Same code either way.
+// shard of channels (all channels of an asset on one); replay runs one on one thread.
+// Same code either way.
 #pragma once
 
 #include <cstdint>
@@ -17,6 +21,7 @@
 #include <unordered_map>
 #include <vector>
 
+#include "core/alarm_episodes.h"
 #include "core/alert.h"
 #include "core/channel_pipeline.h"
 #include "core/channel_state.h"
@@ -86,7 +91,8 @@ class Engine {
   // The options the channel was created with.
   const ChannelOptions& channel_options(ChannelId id) const { return options_of_[id]; }
 
-  // ISA-18.2 operator actions on one alarm of one channel.
+  // ISA-18.2 operator actions on one alarm of one channel. Shelving an anomaly alarm
+  // that is in alarm takes it out of its asset's episode (AlarmEpisodes::NoteSilenced).
   Status Acknowledge(std::string_view channel, AlarmCondition condition, TimestampUs now);
   Status Shelve(std::string_view channel, AlarmCondition condition, TimestampUs now,
                 TimestampUs until);
@@ -113,6 +119,9 @@ class Engine {
   const std::string& channel_name(ChannelId id) const { return channels_[id]->name(); }
   ChannelStatus channel_status(ChannelId id) const { return channels_[id]->status(); }
   const ChannelPipeline& channel(ChannelId id) const { return *channels_[id]; }
+  // The channel's asset (AssetOfChannel); empty when it is grouped with no other.
+  const std::string& channel_asset(ChannelId id) const { return asset_of_[id]; }
+  const AlarmEpisodes& episodes() const { return episodes_; }
   std::int64_t rejected_samples() const { return rejected_samples_; }
 
  private:
@@ -124,12 +133,19 @@ class Engine {
   };
   Result<ChannelPipeline*> Find(std::string_view name);
   void EnsureWorkspace(const ChannelOptions& options);
+  // Fills the grouping fields of out[from...] (AlarmEpisodes::Annotate).
+  void Group(std::vector<Alert>& out, std::size_t from);
+  // After `id`'s pipeline was replaced by a restored one: its episode membership follows
+  // the restored anomaly alarm.
+  void RegroupRestored(ChannelId id);
 
   EngineOptions options_;
   ChannelOptionsResolver resolver_;
   ThresholdDesigner designer_;
   std::vector<std::unique_ptr<ChannelPipeline>> channels_;
   std::vector<ChannelOptions> options_of_;  // by ChannelId
+  std::vector<std::string> asset_of_;       // by ChannelId
+  AlarmEpisodes episodes_;
   std::unordered_map<std::string, ChannelId, NameHash, std::equal_to<>> ids_;
   std::unique_ptr<LstmWorkspace<float>> workspace_;
   int workspace_inputs_ = 0;

@@ -59,6 +59,10 @@ struct ResumeOptions {
 struct ChannelOptions {
   // Engineering unit shown in messages, e.g. "m3/h". Default empty.
   std::string unit;
+  // The asset whose anomaly alarms this channel's are grouped with (AssetOfChannel in
+  // core/alarm_episodes.h): "" derives it from the name (the part before the last dot),
+  // "none" groups the channel with no other. Default "".
+  std::string asset;
   // Nominal sample period in seconds; 0 estimates it from arrival times. Default 0.
   double sample_period_s = 0.0;
   // Samples seen before anomaly alarms arm (state "learning"), counting the scaler's own

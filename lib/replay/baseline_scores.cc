@@ -1,7 +1,10 @@
 #include "replay/baseline_scores.h"
 
+#include <string_view>
+#include <unordered_map>
 #include <utility>
 
+#include "core/alarm_episodes.h"
 #include "replay/pointwise_scoring.h"
 #include "replay/static_limits_baseline.h"
 #include "replay/windowed_gaussian_baseline.h"
@@ -14,6 +17,43 @@ void FeedEdges(const std::vector<BaselineEdge>& edges, std::size_t from,
                SeriesPointScorer& points) {
   for (std::size_t i = from; i < edges.size(); ++i) points.Edge(edges[i].channel, edges[i].phase);
 }
+
+// Groups a limit baseline's alarms into asset episodes exactly as the engine groups its
+// own (same assets, same rule), so every row is scored on what an operator would be shown.
+class BaselineGrouping {
+ public:
+  explicit BaselineGrouping(const ReplayOptions& options) : options_(options) {}
+
+  void Group(std::vector<BaselineEdge>& edges, std::size_t from) {
+    for (std::size_t i = from; i < edges.size(); ++i) {
+      BaselineEdge& edge = edges[i];
+      core::Alert alert;
+      alert.time = edge.time;
+      alert.channel = edge.channel;
+      alert.kind = core::AlertKind::kAnomaly;
+      alert.phase = edge.phase;
+      alert.priority = Options(edge.channel).anomaly_priority;
+      episodes_.Annotate(AssetOf(edge.channel), alert);
+      edge.annunciated = alert.annunciated;
+    }
+  }
+
+ private:
+  core::ChannelOptions Options(std::string_view channel) const {
+    return options_.resolver ? options_.resolver(channel) : options_.engine.defaults;
+  }
+  const std::string& AssetOf(const std::string& channel) {
+    auto it = assets_.find(channel);
+    if (it == assets_.end()) {
+      it = assets_.emplace(channel, core::AssetOfChannel(channel, Options(channel).asset)).first;
+    }
+    return it->second;
+  }
+
+  const ReplayOptions& options_;
+  core::AlarmEpisodes episodes_;
+  std::unordered_map<std::string, std::string> assets_;
+};
 
 }  // namespace
 
@@ -32,6 +72,8 @@ BaselineOutcome ScoreBaselines(const std::string& path, const ReplayOptions& opt
   }
 
   StaticLimitsBaseline limits(options.engine.defaults);
+  BaselineGrouping limits_grouping(options);
+  BaselineGrouping gaussian_grouping(options);
   WindowedGaussianBaseline gaussian(options.engine.defaults);
   SeriesPointScorer last_value_points(windows, scoring);
   SeriesPointScorer limits_points(windows, scoring);
@@ -49,16 +91,18 @@ BaselineOutcome ScoreBaselines(const std::string& path, const ReplayOptions& opt
     if (alert.kind != core::AlertKind::kAnomaly) return core::Status::Ok();
     last_value_points.Edge(alert.channel, alert.phase);
     if (alert.phase == core::AlertPhase::kRaise) {
-      last_value_raises.push_back(Raise{alert.time, alert.channel});
+      last_value_raises.push_back(Raise{alert.time, alert.channel, alert.annunciated});
     }
     return core::Status::Ok();
   };
   callbacks.on_sample = [&](const TracePoint& point) {
     const std::size_t limits_from = limits_edges.size();
     limits.Process(point.channel_name, point.time, point.value, limits_edges);
+    limits_grouping.Group(limits_edges, limits_from);
     FeedEdges(limits_edges, limits_from, limits_points);
     const std::size_t gaussian_from = gaussian_edges.size();
     gaussian.Process(point.channel_name, point.time, point.value, gaussian_edges);
+    gaussian_grouping.Group(gaussian_edges, gaussian_from);
     FeedEdges(gaussian_edges, gaussian_from, gaussian_points);
   };
   ReplayOutcome pass = RunReplay(path, last_value, callbacks);

@@ -138,7 +138,12 @@ EventScoreTable ScoreEventsByChannel(std::span<const Raise> raises,
   for (std::size_t i = 0; i < names.size(); ++i) {
     table.channels.push_back({names[i], ScoreEvents(per_channel[i], windows, duration_s, options)});
   }
-  table.overall = ScoreEvents(raises, windows, duration_s, options);
+  std::vector<Raise> annunciated;
+  annunciated.reserve(raises.size());
+  for (const Raise& raise : raises) {
+    if (raise.annunciated) annunciated.push_back(raise);
+  }
+  table.overall = ScoreEvents(annunciated, windows, duration_s, options);
   return table;
 }
 

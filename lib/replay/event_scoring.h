@@ -60,6 +60,9 @@ core::Status ValidateScoringOptions(const ScoringOptions& options);
 struct Raise {
   core::TimestampUs time = 0;
   std::string channel;
+  // False for a raise that joined an alarm episode already annunciated on its asset
+  // (core/alarm_episodes.h): it counts in its channel's row, not in the overall one.
+  bool annunciated = true;
 };
 
 // The raises among `edges`, in their order: any type with `time`, `channel` and a
@@ -73,7 +76,9 @@ std::vector<Raise> RaisesOf(std::span<const Edge> edges) {
     if constexpr (std::is_same_v<Edge, core::Alert>) {
       if (edge.kind == core::AlertKind::kEvent) continue;
     }
-    if (edge.phase == core::AlertPhase::kRaise) raises.push_back({edge.time, edge.channel});
+    if (edge.phase == core::AlertPhase::kRaise) {
+      raises.push_back({edge.time, edge.channel, edge.annunciated});
+    }
   }
   return raises;
 }
@@ -126,11 +131,13 @@ struct EventScoreTable {
   // One row per channel: those of `channels` in their order, then channels that raised
   // but were not listed, in order of first raise.
   std::vector<ChannelEventScores> channels;
-  // All raises pooled.
+  // The annunciated raises of all channels pooled: what the operator was shown (one
+  // per alarm episode of an asset, Raise::annunciated).
   EventScores overall;
 };
 
-// Per-channel and overall scores. `channels` lists the channels of the recording so that
+// Per-channel scores (every raise of the channel) and overall scores (the annunciated
+// raises only). `channels` lists the channels of the recording so that
 // a channel that never raised still gets a row (recall 0 when there are windows).
 EventScoreTable ScoreEventsByChannel(std::span<const Raise> raises,
                                      std::span<const LabelWindow> windows,

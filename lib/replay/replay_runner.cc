@@ -172,7 +172,8 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
       const std::uint32_t column = found == column_of.end() ? 0 : found->second;
       if (found != column_of.end()) summary.channels[column].alerts.Add(alert);
       if (alert.phase == core::AlertPhase::kRaise) {
-        summary.raises.push_back(RaiseRecord{alert.time, column, alert.kind, alert.detector});
+        summary.raises.push_back(
+            RaiseRecord{alert.time, column, alert.kind, alert.detector, alert.annunciated});
       }
       if (callbacks.on_alert && status.ok()) status = callbacks.on_alert(alert);
     }

@@ -376,7 +376,7 @@ LabelScores ScoreAgainstLabels(const ReplaySummary& summary, std::span<const Lab
   raises.reserve(summary.raises.size());
   for (const RaiseRecord& raise : summary.raises) {
     if (raise.kind == core::AlertKind::kAnomaly) {
-      raises.push_back(Raise{raise.time, summary.channels[raise.channel].name});
+      raises.push_back(Raise{raise.time, summary.channels[raise.channel].name, raise.annunciated});
     } else if (raise.kind == core::AlertKind::kSensor) {
       sensor_raises.push_back(Raise{raise.time, summary.channels[raise.channel].name});
     }

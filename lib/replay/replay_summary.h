@@ -80,6 +80,7 @@ struct RaiseRecord {
   std::uint32_t channel = 0;  // index into ReplaySummary::channels
   core::AlertKind kind = core::AlertKind::kAnomaly;
   core::Detector detector = core::Detector::kCusum;
+  bool annunciated = true;  // core::Alert::annunciated
 };
 
 struct ReplaySummary {

@@ -45,6 +45,9 @@ struct BaselineEdge {
   core::AlertPhase phase = core::AlertPhase::kRaise;
   double value = 0.0;  // the sample's value
   double ratio = 0.0;  // |value - mean| / (k * sigma) at the edge
+  // Set by the scorer's grouping of the baseline's alarms into asset episodes, as the
+  // engine groups its own (core/alarm_episodes.h).
+  bool annunciated = true;
 };
 
 // Shared by the limit baselines (static and windowed gaussian): the alarm ratio of a

@@ -26,12 +26,13 @@ core::Result<std::unique_ptr<Runtime>> Runtime::Create(
                             self->options_.publish_interval_s};
   const WorkerStateOptions state{
       self->options_.state_in.empty() ? self->options_.state_dir : self->options_.state_in,
-      self->options_.state_dir, self->options_.workers};
+      self->options_.state_dir, self->options_.workers, config->Resolver()};
   for (int i = 0; i < self->options_.workers; ++i) {
     runtime->workers_.push_back(std::make_unique<EngineWorker>(
         i, config, topics, self->options_.queue_capacity, bus, self->clock_, state));
   }
   runtime->pending_.resize(runtime->workers_.size());
+  runtime->router_ = ShardRouter(runtime->workers_.size(), config->Resolver());
   bus.SetMessageHandler([self](std::string_view topic, std::string_view payload) {
     self->OnMessage(topic, payload);
   });
@@ -121,7 +122,7 @@ bool Runtime::IsOwnTopic(std::string_view topic) const {
 
 void Runtime::OnSample(std::string_view channel, core::TimestampUs time, double value) {
   received_.fetch_add(1, std::memory_order_relaxed);
-  const std::size_t shard = ShardFor(channel, workers_.size());
+  const std::size_t shard = router_.WorkerFor(channel);
   std::vector<SampleItem>& batch = pending_[shard];
   batch.push_back(
       SampleItem{std::string(channel), time, value, std::chrono::steady_clock::now(), false});
@@ -169,7 +170,7 @@ void Runtime::OnCommand(std::string_view payload) {
     if (!s.ok()) spdlog::warn("reply not published: {}", s.message());
     return;
   }
-  const std::size_t shard = ShardFor(parsed.command.channel, workers_.size());
+  const std::size_t shard = router_.WorkerFor(parsed.command.channel);
   workers_[shard]->PushControl(CommandItem{std::move(parsed)});
 }
 
@@ -196,6 +197,10 @@ void Runtime::Reload(std::shared_ptr<const config::LoadedConfig> config,
   // The workers get the new channel options before any sample of a new topic can reach
   // them (control items go ahead of samples).
   for (auto& worker : workers_) worker->PushControl(ReloadItem{config});
+  {
+    const std::lock_guard lock(handler_mutex_);
+    router_.set_resolver(config->Resolver());
+  }
   if (std::find(changed.begin(), changed.end(), "mqtt.subscriptions") != changed.end()) {
     ApplySubscriptions(next.intake);
   }

@@ -2,7 +2,8 @@
 //
 // Threads. The bus's network thread runs the message handler and never computes: for a
 // sample topic it maps and parses the payload (SampleIntake) and collects the sample for
-// the worker owning the channel (ShardFor: a stable hash of the name); at the end of the
+// the worker owning the channel (ShardRouter: a stable hash of its asset, else its name,
+// so an asset's channels share an engine and group their alarms); at the end of the
 // bus's batch (MessageBus's batch-end handler: what one network read delivered), before
 // a command, and when a worker's share of a batch reaches kMaxBatch, it offers each
 // worker its samples in one queue hand-over, never blocking: a full queue drops the
@@ -52,6 +53,7 @@
 #include "service/engine_worker.h"
 #include "service/metrics_text.h"
 #include "service/service_options.h"
+#include "service/shard.h"
 #include "service/state_json.h"
 
 namespace nightjar::service {
@@ -119,6 +121,8 @@ class Runtime {
   bool accepting_ = false;    // guarded by handler_mutex_
   // Guarded by handler_mutex_: samples of the current batch, by worker, not yet offered.
   std::vector<std::vector<SampleItem>> pending_;
+  // Guarded by handler_mutex_: which worker owns each channel (by its asset, shard.h).
+  ShardRouter router_{1, {}};
 
   mutable std::mutex intake_mutex_;
   std::uint64_t retired_bad_payloads_ = 0;  // guarded by intake_mutex_: of replaced intakes

@@ -6,6 +6,7 @@
 #include <filesystem>
 #include <system_error>
 
+#include "core/alarm_episodes.h"
 #include "service/shard.h"
 #include "state/state_directory.h"
 
@@ -27,7 +28,9 @@ WorkerStateStore::WorkerStateStore(int worker_index, WorkerStateOptions options)
 
 bool WorkerStateStore::Owns(std::string_view channel) const {
   if (channel.empty()) return index_ == 0;
-  return ShardFor(channel, static_cast<std::size_t>(options_.worker_count)) ==
+  const std::string asset = core::AssetOfChannel(
+      channel, options_.resolver ? options_.resolver(channel).asset : std::string());
+  return ShardFor(channel, asset, static_cast<std::size_t>(options_.worker_count)) ==
          static_cast<std::size_t>(index_);
 }
 

@@ -26,6 +26,9 @@ struct WorkerStateOptions {
   std::string load_dir;  // read at start: `--state-in DIR`, else daemon.state_dir; "" = none
   std::string save_dir;  // daemon.state_dir; "" = no checkpoints
   int worker_count = 1;
+  // Channel options of the config (their `asset` decides the worker, shard.h); empty:
+  // the built-in defaults.
+  core::ChannelOptionsResolver resolver;
 };
 
 struct CheckpointResult {

@@ -51,7 +51,7 @@ void RunCheckpoints(benchmark::State& state, int channels, int changed_percent) 
     return;
   }
   spdlog::set_level(spdlog::level::warn);  // one info line per checkpoint otherwise
-  WorkerStateStore store(0, WorkerStateOptions{"", dir, 1});
+  WorkerStateStore store(0, WorkerStateOptions{"", dir, 1, {}});
   std::vector<char> unsaved(static_cast<std::size_t>(channels), 0);
   const int changed = changed_percent < 0 ? channels : channels * changed_percent / 100;
   CheckpointResult last;

@@ -62,7 +62,9 @@ TEST(AlertJsonTest, EveryFieldReadsBackWithItsValue) {
   EXPECT_EQ(line.find('\n'), std::string::npos) << "one line per alert";
   const nlohmann::json j = Parse(line);
   ASSERT_TRUE(j.is_object());
-  EXPECT_EQ(j.size(), 12u);
+  EXPECT_EQ(j.size(), 14u);
+  EXPECT_EQ(j.at("annunciated"), true);
+  EXPECT_TRUE(j.at("episode").is_null());  // a sensor alarm belongs to no episode
   EXPECT_EQ(j.at("ts"), "2026-03-09T10:54:34.250Z");
   EXPECT_EQ(j.at("channel"), alert.channel);
   EXPECT_EQ(j.at("kind"), "sensor");
@@ -86,8 +88,30 @@ TEST(AlertJsonTest, FieldsComeInTheDocumentedOrder) {
   for (const auto& item : j.items()) keys.push_back(item.key());
   const std::vector<std::string> expected = {"ts",        "channel",   "kind",     "detector",
                                              "phase",     "value",     "expected", "z",
-                                             "statistic", "threshold", "priority", "message"};
+                                             "statistic", "threshold", "priority", "message",
+                                             "annunciated", "episode"};
   EXPECT_EQ(keys, expected);
+}
+
+TEST(AlertJsonTest, AnEpisodeMemberCarriesItsEpisode) {
+  Alert alert = SampleAlert();
+  alert.kind = AlertKind::kAnomaly;
+  alert.annunciated = false;
+  alert.asset = "cw2.pump_a";
+  alert.episode_first_out = "cw2.pump_a.discharge_pressure";
+  alert.episode_since = alert.time - 12 * kMicrosPerSecond;
+  alert.episode_active = 2;
+  const nlohmann::json j = Parse(AlertToJson(alert));
+  EXPECT_EQ(j.at("annunciated"), false);
+  const nlohmann::json& episode = j.at("episode");
+  EXPECT_EQ(episode.at("asset"), "cw2.pump_a");
+  EXPECT_EQ(episode.at("first_out"), "cw2.pump_a.discharge_pressure");
+  EXPECT_EQ(episode.at("since"), "2026-03-09T10:54:22.250Z");
+  EXPECT_EQ(episode.at("active"), 2);
+  alert.episode_first_out.clear();  // a clear that belongs to no open episode
+  const nlohmann::json none = Parse(AlertToJson(alert));
+  EXPECT_TRUE(none.at("episode").at("first_out").is_null());
+  EXPECT_TRUE(none.at("episode").at("since").is_null());
 }
 
 TEST(AlertJsonTest, EveryEnumValueHasItsWireName) {

@@ -24,7 +24,7 @@ import subprocess
 import sys
 
 FIELDS = ["ts", "channel", "kind", "detector", "phase", "value", "expected", "z",
-          "statistic", "threshold", "priority", "message"]
+          "statistic", "threshold", "priority", "message", "annunciated", "episode"]
 KINDS = {"anomaly", "event", "sensor"}
 DETECTORS = {"cusum", "ewma", "spike", "not_finite", "range", "flatline", "gap", "template"}
 PHASES = {"raise", "clear"}
@@ -127,6 +127,13 @@ def check_outputs(directory, rows, where):
                       "%s line %d %s = %r" % (where, number, key, value))
             check(isinstance(alert.get("message"), str) and alert["message"],
                   "%s line %d message" % (where, number))
+            check(isinstance(alert.get("annunciated"), bool),
+                  "%s line %d annunciated" % (where, number))
+            episode = alert.get("episode")
+            # Only anomaly alarms of a grouped channel (config key asset) have an episode.
+            check(episode is None or (alert.get("kind") == "anomaly" and
+                                      alert["channel"].startswith(episode["asset"] + ".")),
+                  "%s line %d episode %r" % (where, number, episode))
             alerts.append(alert)
     times = [a["ts"] for a in alerts]
     check(times == sorted(times), where + ": alerts.jsonl is not in time order")

@@ -266,6 +266,45 @@ TEST(EventScoringTest, PerChannelAndPooled) {
   }
 }
 
+TEST(EventScoringTest, TheOverallRowCountsAnnunciatedRaisesOnlyChannelRowsCountAll) {
+  // The fault of PerChannelAndPooled, now grouped into asset episodes: q (120) and r (130)
+  // joined p's episode (110) and were not annunciated; q's 3000 s and t's 4000 s raises
+  // each opened an episode of their own.
+  //  overall: raises 3 (p 110, q 3000, t 4000), true 1, false 2: P = 1/3, R = 1/2,
+  //           F1 = 2 * (1/3) * (1/2) / (5/6) = 0.4.
+  //  q:       both of its raises: 1 true, 1 false, P = 1/2 as before.
+  const std::vector<LabelWindow> windows = {Window(100, 200, "anomaly"),
+                                            Window(500, 500, "anomaly")};
+  const std::vector<Raise> raises = {{At(110), "p", true},
+                                     {At(120), "q", false},
+                                     {At(130), "r", false},
+                                     {At(3000), "q", true},
+                                     {At(4000), "t", true}};
+  const std::vector<std::string> channels = {"p", "q", "r"};
+  const EventScoreTable table = ScoreEventsByChannel(raises, windows, channels, 86400);
+  EXPECT_EQ(table.overall.raises, 3);
+  EXPECT_EQ(table.overall.true_raises, 1);
+  EXPECT_EQ(table.overall.false_alarms, 2);
+  EXPECT_NEAR(table.overall.precision, 1.0 / 3.0, 1e-12);
+  EXPECT_NEAR(table.overall.f1, 0.4, 1e-12);
+  ASSERT_GE(table.channels.size(), 3u);
+  EXPECT_EQ(table.channels[1].channel, "q");
+  EXPECT_EQ(table.channels[1].scores.raises, 2);
+  EXPECT_NEAR(table.channels[1].scores.precision, 0.5, 1e-12);
+  EXPECT_EQ(table.channels[2].scores.raises, 1);  // r's own row still sees its raise
+}
+
+TEST(EventScoringTest, RaisesOfCarriesTheAnnunciatedMark) {
+  std::vector<core::Alert> alerts(2);
+  alerts[0].channel = "p";
+  alerts[1].channel = "q";
+  alerts[1].annunciated = false;
+  const std::vector<Raise> raises = RaisesOf(alerts);
+  ASSERT_EQ(raises.size(), 2u);
+  EXPECT_TRUE(raises[0].annunciated);
+  EXPECT_FALSE(raises[1].annunciated);
+}
+
 TEST(EventScoringTest, RaisesOfKeepsOnlyRaises) {
   std::vector<core::Alert> alerts(3);
   alerts[0].time = At(1);

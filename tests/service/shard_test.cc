@@ -6,7 +6,10 @@
 #include <gtest/gtest.h>
 
 #include <string>
+#include <string_view>
 #include <vector>
+
+#include "core/engine_options.h"
 
 namespace nightjar::service {
 namespace {
@@ -43,6 +46,40 @@ TEST(ShardTest, SpreadsManyChannelsEvenly) {
     EXPECT_GT(c, 900);
     EXPECT_LT(c, 1100);
   }
+}
+
+TEST(ShardTest, AnAssetsChannelsShareOneWorker) {
+  // By the default asset (the name before its last dot) every channel of 50 pumps lands
+  // on its pump's worker; the pumps still spread over all four workers.
+  ShardRouter router(4, {});
+  std::vector<int> pumps_per_worker(4, 0);
+  for (int pump = 0; pump < 50; ++pump) {
+    const std::string asset = "cw2.pump_" + std::to_string(pump);
+    const std::size_t worker = router.WorkerFor(asset + ".flow");
+    EXPECT_EQ(worker, ShardFor(asset, 4));
+    for (const char* signal : {".pressure", ".motor_current", ".bearing_temperature"}) {
+      EXPECT_EQ(router.WorkerFor(asset + signal), worker) << asset << signal;
+    }
+    ++pumps_per_worker[worker];
+  }
+  for (const int n : pumps_per_worker) EXPECT_GT(n, 0);
+}
+
+TEST(ShardTest, ARouterFollowsTheConfiguredAssetAndRemembersItsChoice) {
+  const auto rig_or_none = [](std::string_view channel) {
+    core::ChannelOptions options;
+    options.asset = channel.starts_with("Acc") ? "rig" : "none";
+    return options;
+  };
+  ShardRouter router(3, rig_or_none);
+  EXPECT_EQ(router.WorkerFor("Accelerometer1RMS"), ShardFor("rig", 3));
+  EXPECT_EQ(router.WorkerFor("Accelerometer2RMS"), ShardFor("rig", 3));
+  EXPECT_EQ(router.WorkerFor("cw2.pump_a.flow"), ShardFor("cw2.pump_a.flow", 3));  // "none"
+  // A reload that changes the assets moves only channels not seen yet.
+  router.set_resolver([](std::string_view) { return core::ChannelOptions{}; });
+  EXPECT_EQ(router.WorkerFor("Accelerometer1RMS"), ShardFor("rig", 3));
+  EXPECT_EQ(router.WorkerFor("cw2.pump_b.flow"), ShardFor("cw2.pump_b", 3));
+  EXPECT_EQ(ShardRouter(1, rig_or_none).WorkerFor("Accelerometer1RMS"), 0u);
 }
 
 }  // namespace

@@ -44,7 +44,7 @@ TEST(WorkerStateStoreTest, CheckpointWritesChangedChannelsAndClearsTheirFlags) {
                                              "cw2.tank.level"};
   core::Engine engine(SmallModel());
   Feed(engine, channels);
-  WorkerStateStore store(0, WorkerStateOptions{"", save_dir, 1});
+  WorkerStateStore store(0, WorkerStateOptions{"", save_dir, 1, {}});
   std::vector<char> unsaved = {1, 0, 1};
   const CheckpointResult result = store.Save(engine, "test", &unsaved);
   EXPECT_EQ(result.written, 2U);
@@ -67,7 +67,7 @@ TEST(WorkerStateStoreTest, FailedCheckpointKeepsTheFlagsForTheNextOne) {
   core::Engine engine(SmallModel());
   Feed(engine, channels);
   // A state folder below a regular file cannot be made.
-  WorkerStateStore store(0, WorkerStateOptions{"", dir.File("plain/state"), 1});
+  WorkerStateStore store(0, WorkerStateOptions{"", dir.File("plain/state"), 1, {}});
   std::vector<char> unsaved = {1, 1};
   const CheckpointResult result = store.Save(engine, "test", &unsaved);
   EXPECT_EQ(result.written, 0U);
