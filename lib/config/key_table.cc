@@ -39,6 +39,9 @@ const std::array kKeys = {
     KeySpec{"asset", NIGHTJAR_FIELD(asset), None(), "",
             "asset whose anomaly alarms form one episode with this channel's; \"\" = the "
             "name before its last dot, \"none\" = no grouping"},
+    KeySpec{"episode_window_s", NIGHTJAR_FIELD(episode_window_s), Closed(0, 86400), "s",
+            "a raise of the asset's other channels this long after the open episode's latest "
+            "annunciated raise is annunciated again"},
     KeySpec{"sample_period_s", NIGHTJAR_FIELD(sample_period_s), AtLeast(0), "s",
             "nominal sample period; 0 estimates it from arrival times"},
     KeySpec{

@@ -38,7 +38,7 @@ AlarmEpisodes::Episode& AlarmEpisodes::EpisodeOf(std::string_view asset) {
   return it->second;
 }
 
-void AlarmEpisodes::Annotate(std::string_view asset, Alert& alert) {
+void AlarmEpisodes::Annotate(std::string_view asset, TimestampUs window, Alert& alert) {
   alert.annunciated = true;
   if (alert.kind != AlertKind::kAnomaly || asset.empty()) return;
   alert.asset = std::string(asset);
@@ -47,6 +47,7 @@ void AlarmEpisodes::Annotate(std::string_view asset, Alert& alert) {
     if (episode.members.empty()) {
       episode.first_out = alert.channel;
       episode.since = alert.time;
+      episode.last_annunciated = alert.time;
       episode.highest_annunciated = alert.priority;
       episode.members.push_back(alert.channel);
       ++opened_;
@@ -54,8 +55,12 @@ void AlarmEpisodes::Annotate(std::string_view asset, Alert& alert) {
       alert.annunciated = false;
     } else {
       episode.members.push_back(alert.channel);
-      alert.annunciated = alert.priority > episode.highest_annunciated;
-      if (alert.annunciated) episode.highest_annunciated = alert.priority;
+      alert.annunciated = alert.priority > episode.highest_annunciated ||
+                          alert.time - episode.last_annunciated > window;
+      if (alert.annunciated) {
+        episode.highest_annunciated = std::max(episode.highest_annunciated, alert.priority);
+        episode.last_annunciated = alert.time;
+      }
     }
     Stamp(episode.first_out, episode.since, episode.members.size(), alert);
     return;
@@ -78,6 +83,7 @@ void AlarmEpisodes::NoteActive(std::string_view asset, std::string_view channel,
   if (episode.members.empty()) {
     episode.first_out = std::string(channel);
     episode.since = since;
+    episode.last_annunciated = since;
     episode.highest_annunciated = priority;
     ++opened_;
   }

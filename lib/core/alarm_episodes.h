@@ -9,8 +9,11 @@
 //  * a raise while the episode is open joins it as a member and is not annunciated (the
 //    alarm is still published, marked `annunciated: false`: suppressed by design in
 //    ISA-18.2 terms, the operator sees one alarm and the dashboard lists its members),
-//    unless its priority is higher than any annunciated so far in the episode: a higher
-//    priority is always annunciated;
+//    unless its priority is higher than any annunciated so far in the episode (a higher
+//    priority is always annunciated), or it comes later than the episode window after the
+//    episode's latest annunciated raise: an episode that stays open (a member chattering
+//    or standing in alarm) must not hide a fault that starts later, so an asset
+//    annunciates at most one raise per window, not none;
 //  * a member's clear leaves the episode; the clear of the last member ends it and is
 //    annunciated (the episode's return to normal), the others are not.
 // A channel whose asset is empty is grouped with no other: every edge is annunciated.
@@ -45,7 +48,8 @@ class AlarmEpisodes {
   // that are not anomaly alarms, and alerts of an ungrouped channel, are left annunciated
   // with no episode. A raise of a channel already in the episode, or a clear of one not
   // in it, changes nothing and is not annunciated (a repeated edge is never a new alarm).
-  void Annotate(std::string_view asset, Alert& alert);
+  // `window` (>= 0) is the episode window of the raising channel.
+  void Annotate(std::string_view asset, TimestampUs window, Alert& alert);
 
   // `channel` of `asset` is in alarm without an edge now (restored from a checkpoint, its
   // raise went out before the restart): it joins the episode, opening one with itself as
@@ -66,6 +70,7 @@ class AlarmEpisodes {
     std::vector<std::string> members;  // channels in alarm; few per asset
     std::string first_out;
     TimestampUs since = 0;
+    TimestampUs last_annunciated = 0;  // the latest annunciated raise
     Priority highest_annunciated = Priority::kLow;
   };
   struct NameHash {

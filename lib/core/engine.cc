@@ -57,7 +57,12 @@ void Engine::Group(std::vector<Alert>& out, std::size_t from) {
     Alert& alert = out[i];
     if (alert.kind != AlertKind::kAnomaly) continue;  // annunciated, no episode: the defaults
     const auto it = ids_.find(alert.channel);
-    episodes_.Annotate(it == ids_.end() ? std::string_view() : asset_of_[it->second], alert);
+    if (it == ids_.end()) {
+      episodes_.Annotate({}, 0, alert);
+      continue;
+    }
+    episodes_.Annotate(asset_of_[it->second],
+                       FromSeconds(options_of_[it->second].episode_window_s), alert);
   }
 }
 

@@ -27,6 +27,9 @@ const char* ForecasterName(Forecaster forecaster) {
 }
 
 Status ValidateChannelOptions(const ChannelOptions& options) {
+  if (!(options.episode_window_s >= 0.0 && options.episode_window_s <= 86400.0)) {
+    return Invalid("episode_window_s", "must be in [0, 86400] s");
+  }
   if (!(options.sample_period_s >= 0.0) || !std::isfinite(options.sample_period_s)) {
     return Invalid("sample_period_s", "must be >= 0 s (0 = estimate)");
   }

@@ -32,8 +32,10 @@ class BaselineGrouping {
       alert.channel = edge.channel;
       alert.kind = core::AlertKind::kAnomaly;
       alert.phase = edge.phase;
-      alert.priority = Options(edge.channel).anomaly_priority;
-      episodes_.Annotate(AssetOf(edge.channel), alert);
+      const core::ChannelOptions options = Options(edge.channel);
+      alert.priority = options.anomaly_priority;
+      episodes_.Annotate(AssetOf(edge.channel), core::FromSeconds(options.episode_window_s),
+                         alert);
       edge.annunciated = alert.annunciated;
     }
   }

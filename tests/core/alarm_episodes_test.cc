@@ -14,6 +14,7 @@ namespace nightjar::core {
 namespace {
 
 constexpr TimestampUs kT0 = 1'780'000'000LL * kMicrosPerSecond;
+constexpr TimestampUs kWindow = 600 * kMicrosPerSecond;  // an episode window of 10 min
 
 Alert Edge(const std::string& channel, AlertPhase phase, int second,
            Priority priority = Priority::kMedium, AlertKind kind = AlertKind::kAnomaly) {
@@ -41,12 +42,12 @@ TEST(AlarmEpisodesTest, OnlyTheFirstOutRaiseAndTheLastClearAreAnnunciated) {
   Alert b = Edge("p.pressure", AlertPhase::kRaise, 5);
   Alert a_clear = Edge("p.flow", AlertPhase::kClear, 60);
   Alert b_clear = Edge("p.pressure", AlertPhase::kClear, 90);
-  episodes.Annotate("p", a);
+  episodes.Annotate("p", kWindow, a);
   EXPECT_EQ(episodes.open_episodes(), 1u);
-  episodes.Annotate("p", b);
-  episodes.Annotate("p", a_clear);
+  episodes.Annotate("p", kWindow, b);
+  episodes.Annotate("p", kWindow, a_clear);
   EXPECT_EQ(episodes.open_episodes(), 1u);  // the pressure is still in alarm
-  episodes.Annotate("p", b_clear);
+  episodes.Annotate("p", kWindow, b_clear);
   EXPECT_EQ(episodes.open_episodes(), 0u);
 
   EXPECT_TRUE(a.annunciated);
@@ -74,7 +75,7 @@ TEST(AlarmEpisodesTest, AMemberThatClearsAndRaisesAgainInsideTheEpisodeIsNotANew
   };
   int annunciated = 0;
   for (Alert& edge : edges) {
-    episodes.Annotate("p", edge);
+    episodes.Annotate("p", kWindow, edge);
     annunciated += edge.annunciated ? 1 : 0;
   }
   EXPECT_EQ(annunciated, 1);  // the chattering member never reaches the annunciator
@@ -86,9 +87,9 @@ TEST(AlarmEpisodesTest, ARaiseAfterTheEpisodeEndedOpensANewOne) {
   Alert first = Edge("p.flow", AlertPhase::kRaise, 0);
   Alert first_clear = Edge("p.flow", AlertPhase::kClear, 30);
   Alert second = Edge("p.pressure", AlertPhase::kRaise, 600);
-  episodes.Annotate("p", first);
-  episodes.Annotate("p", first_clear);
-  episodes.Annotate("p", second);
+  episodes.Annotate("p", kWindow, first);
+  episodes.Annotate("p", kWindow, first_clear);
+  episodes.Annotate("p", kWindow, second);
   EXPECT_TRUE(first_clear.annunciated);  // a lone first-out: its clear ends the episode
   EXPECT_TRUE(second.annunciated);
   EXPECT_EQ(second.episode_first_out, "p.pressure");
@@ -102,25 +103,47 @@ TEST(AlarmEpisodesTest, AMemberOfHigherPriorityIsAnnunciatedOneOfEqualPriorityIs
   Alert low_too = Edge("p.vibration", AlertPhase::kRaise, 1, Priority::kLow);
   Alert high = Edge("p.pressure", AlertPhase::kRaise, 2, Priority::kHigh);
   Alert medium = Edge("p.flow", AlertPhase::kRaise, 3, Priority::kMedium);
-  for (Alert* alert : {&low, &low_too, &high, &medium}) episodes.Annotate("p", *alert);
+  for (Alert* alert : {&low, &low_too, &high, &medium}) episodes.Annotate("p", kWindow, *alert);
   EXPECT_TRUE(low.annunciated);
   EXPECT_FALSE(low_too.annunciated);
   EXPECT_TRUE(high.annunciated);
   EXPECT_FALSE(medium.annunciated);  // below the high one already shown
 }
 
+TEST(AlarmEpisodesTest, ARaiseLaterThanTheWindowAfterTheLastAnnunciatedOneIsAnnunciated) {
+  // p.flow stands in alarm for an hour; the pressure raises 10 min + 1 s after the flow's
+  // raise (annunciated), the temperature 5 min after that (not), the vibration 10 min
+  // + 1 s after the pressure (annunciated): at most one per window, never none.
+  AlarmEpisodes episodes;
+  Alert flow = Edge("p.flow", AlertPhase::kRaise, 0);
+  Alert pressure = Edge("p.pressure", AlertPhase::kRaise, 601);
+  Alert temperature = Edge("p.temperature", AlertPhase::kRaise, 901);
+  Alert vibration = Edge("p.vibration", AlertPhase::kRaise, 1202);
+  Alert just_inside = Edge("p.level", AlertPhase::kRaise, 1802);  // exactly one window
+  for (Alert* alert : {&flow, &pressure, &temperature, &vibration, &just_inside}) {
+    episodes.Annotate("p", kWindow, *alert);
+  }
+  EXPECT_TRUE(flow.annunciated);
+  EXPECT_TRUE(pressure.annunciated);
+  EXPECT_FALSE(temperature.annunciated);
+  EXPECT_TRUE(vibration.annunciated);
+  EXPECT_FALSE(just_inside.annunciated);
+  EXPECT_EQ(vibration.episode_first_out, "p.flow");  // still the one episode
+  EXPECT_EQ(episodes.episodes_opened(), 1u);
+}
+
 TEST(AlarmEpisodesTest, UngroupedChannelsSensorAlarmsAndEventsAreAlwaysAnnunciated) {
   AlarmEpisodes episodes;
   Alert lone_a = Edge("FT101", AlertPhase::kRaise, 0);
   Alert lone_b = Edge("FT102", AlertPhase::kRaise, 1);
-  episodes.Annotate("", lone_a);
-  episodes.Annotate("", lone_b);
+  episodes.Annotate("", kWindow, lone_a);
+  episodes.Annotate("", kWindow, lone_b);
   Alert anomaly = Edge("p.flow", AlertPhase::kRaise, 2);
   Alert gap = Edge("p.pressure", AlertPhase::kRaise, 3, Priority::kLow, AlertKind::kSensor);
   Alert notice = Edge("p.pressure", AlertPhase::kRaise, 4, Priority::kLow, AlertKind::kEvent);
-  episodes.Annotate("p", anomaly);
-  episodes.Annotate("p", gap);
-  episodes.Annotate("p", notice);
+  episodes.Annotate("p", kWindow, anomaly);
+  episodes.Annotate("p", kWindow, gap);
+  episodes.Annotate("p", kWindow, notice);
   EXPECT_TRUE(lone_a.annunciated);
   EXPECT_TRUE(lone_b.annunciated);
   EXPECT_TRUE(lone_a.asset.empty());
@@ -133,11 +156,11 @@ TEST(AlarmEpisodesTest, UngroupedChannelsSensorAlarmsAndEventsAreAlwaysAnnunciat
 TEST(AlarmEpisodesTest, ShelvingTheLastMemberEndsTheEpisodeSoTheNextFaultIsAnnunciated) {
   AlarmEpisodes episodes;
   Alert a = Edge("p.flow", AlertPhase::kRaise, 0);
-  episodes.Annotate("p", a);
+  episodes.Annotate("p", kWindow, a);
   episodes.NoteSilenced("p", "p.flow");  // its clear will never be published
   EXPECT_EQ(episodes.open_episodes(), 0u);
   Alert b = Edge("p.pressure", AlertPhase::kRaise, 3600);
-  episodes.Annotate("p", b);
+  episodes.Annotate("p", kWindow, b);
   EXPECT_TRUE(b.annunciated);
   episodes.NoteSilenced("q", "q.flow");  // unknown: ignored
   EXPECT_EQ(episodes.open_episodes(), 1u);
@@ -147,20 +170,20 @@ TEST(AlarmEpisodesTest, AChannelRestoredInAlarmKeepsItsEpisodeOpen) {
   AlarmEpisodes episodes;
   episodes.NoteActive("p", "p.flow", kT0, Priority::kMedium);
   Alert b = Edge("p.pressure", AlertPhase::kRaise, 10);
-  episodes.Annotate("p", b);
+  episodes.Annotate("p", kWindow, b);
   EXPECT_FALSE(b.annunciated);
   EXPECT_EQ(b.episode_first_out, "p.flow");
   Alert a_clear = Edge("p.flow", AlertPhase::kClear, 20);
   Alert b_clear = Edge("p.pressure", AlertPhase::kClear, 30);
-  episodes.Annotate("p", a_clear);
-  episodes.Annotate("p", b_clear);
+  episodes.Annotate("p", kWindow, a_clear);
+  episodes.Annotate("p", kWindow, b_clear);
   EXPECT_TRUE(b_clear.annunciated);
 }
 
 TEST(AlarmEpisodesTest, AClearOfAChannelInNoEpisodeIsNotAnnunciatedAndNamesNoEpisode) {
   AlarmEpisodes episodes;
   Alert clear = Edge("p.flow", AlertPhase::kClear, 0);  // e.g. a reset of a shelved alarm
-  episodes.Annotate("p", clear);
+  episodes.Annotate("p", kWindow, clear);
   EXPECT_FALSE(clear.annunciated);
   EXPECT_TRUE(clear.episode_first_out.empty());
   EXPECT_EQ(clear.episode_since, 0);
@@ -174,7 +197,7 @@ TEST(AlarmEpisodesTest, OneFaultOnEightChannelsIsOneAnnunciatedAlarm) {
   int annunciated_raises = 0;
   for (int i = 0; i < 8; ++i) {
     Alert raise = Edge("rig.channel" + std::to_string(i), AlertPhase::kRaise, 20 * i);
-    episodes.Annotate("rig", raise);
+    episodes.Annotate("rig", kWindow, raise);
     annunciated_raises += raise.annunciated ? 1 : 0;
   }
   EXPECT_EQ(annunciated_raises, 1);

@@ -189,6 +189,56 @@ TEST(RunDaemonTest, StepRaisesOnceClearsOnceStateRetainedSigtermGoesOffline) {
   EXPECT_EQ(last["commands"], 2);
 }
 
+// One step on two channels of pump cw2.pump_a is one alarm episode: both alarms are
+// published, one is annunciated. By name the two channels hash to different workers
+// (FNV-1a 64 mod 2: flow 1, motor_current 0); routing by asset puts them on one engine,
+// which is what lets their alarms be grouped at all.
+TEST(RunDaemonTest, OneFaultOnTwoChannelsOfAPumpIsOneAnnunciatedEpisode) {
+  auto broker = StartBroker();
+  ASSERT_TRUE(broker);
+  auto witness = Watch(*broker, {kStatusTopic});
+  ASSERT_TRUE(witness);
+  auto started = DaemonProcess::Start(*broker, TestConfig());
+  ASSERT_TRUE(started.ok()) << started.status().message();
+  DaemonProcess& daemon = **started;
+  const std::string current_topic = "brackwater/cw2/pump_a/motor_current";
+
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(0, 420, 10.0, 400, 430)).ok());
+  ASSERT_TRUE(PublishLines(*broker, current_topic, FlowLines(0, 420, 10.0, 400, 430)).ok());
+  ASSERT_TRUE(WaitFor([&] { return AlertsOf(*witness).size() >= 2; }, milliseconds(10000)))
+      << daemon.log();
+  ASSERT_TRUE(PublishLines(*broker, kFlowTopic, FlowLines(420, 700, 10.0, 400, 430)).ok());
+  ASSERT_TRUE(PublishLines(*broker, current_topic, FlowLines(420, 700, 10.0, 400, 430)).ok());
+  ASSERT_TRUE(WaitFor([&] { return AlertsOf(*witness).size() >= 4; }, milliseconds(10000)))
+      << daemon.log();
+  StopCleanly(daemon);
+
+  const std::vector<Json> alerts = AlertsOf(*witness);
+  ASSERT_EQ(alerts.size(), 4u) << witness->output();
+  int raises = 0;
+  int annunciated_raises = 0;
+  int annunciated_clears = 0;
+  std::string first_out;
+  for (const Json& a : alerts) {
+    ASSERT_TRUE(a["episode"].is_object()) << a.dump();
+    EXPECT_EQ(a["episode"]["asset"], "cw2.pump_a");
+    if (a["phase"] == "raise") {
+      ++raises;
+      if (a["annunciated"] == true) {
+        ++annunciated_raises;
+        first_out = a["channel"].get<std::string>();
+      }
+    } else if (a["annunciated"] == true) {
+      ++annunciated_clears;
+      EXPECT_EQ(a["episode"]["active"], 0) << a.dump();  // the episode's last clear
+    }
+  }
+  EXPECT_EQ(raises, 2);
+  EXPECT_EQ(annunciated_raises, 1) << witness->output();
+  EXPECT_EQ(annunciated_clears, 1) << witness->output();
+  for (const Json& a : alerts) EXPECT_EQ(a["episode"]["first_out"], first_out) << a.dump();
+}
+
 // Scrapes http://127.0.0.1:<port>/metrics with tests/daemon/scrape_openmetrics.py
 // (Python's urllib as the independent client; it checks the text line by line against
 // the OpenMetrics 1.0 format and that another path is 404) into a sample -> value map;
