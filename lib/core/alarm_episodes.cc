@@ -75,8 +75,8 @@ void AlarmEpisodes::Annotate(std::string_view asset, TimestampUs window, Alert& 
   }
 }
 
-void AlarmEpisodes::NoteActive(std::string_view asset, std::string_view channel,
-                               TimestampUs since, Priority priority) {
+void AlarmEpisodes::NoteActive(std::string_view asset, std::string_view channel, TimestampUs since,
+                               Priority priority) {
   if (asset.empty()) return;
   Episode& episode = EpisodeOf(asset);
   if (Contains(episode.members, channel)) return;

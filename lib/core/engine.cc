@@ -61,8 +61,8 @@ void Engine::Group(std::vector<Alert>& out, std::size_t from) {
       episodes_.Annotate({}, 0, alert);
       continue;
     }
-    episodes_.Annotate(asset_of_[it->second],
-                       FromSeconds(options_of_[it->second].episode_window_s), alert);
+    episodes_.Annotate(asset_of_[it->second], FromSeconds(options_of_[it->second].episode_window_s),
+                       alert);
   }
 }
 

@@ -34,8 +34,7 @@ class BaselineGrouping {
       alert.phase = edge.phase;
       const core::ChannelOptions options = Options(edge.channel);
       alert.priority = options.anomaly_priority;
-      episodes_.Annotate(AssetOf(edge.channel), core::FromSeconds(options.episode_window_s),
-                         alert);
+      episodes_.Annotate(AssetOf(edge.channel), core::FromSeconds(options.episode_window_s), alert);
       edge.annunciated = alert.annunciated;
     }
   }

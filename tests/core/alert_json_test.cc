@@ -86,10 +86,9 @@ TEST(AlertJsonTest, FieldsComeInTheDocumentedOrder) {
   ASSERT_FALSE(j.is_discarded());
   std::vector<std::string> keys;
   for (const auto& item : j.items()) keys.push_back(item.key());
-  const std::vector<std::string> expected = {"ts",        "channel",   "kind",     "detector",
-                                             "phase",     "value",     "expected", "z",
-                                             "statistic", "threshold", "priority", "message",
-                                             "annunciated", "episode"};
+  const std::vector<std::string> expected = {
+      "ts", "channel",   "kind",      "detector", "phase",   "value",       "expected",
+      "z",  "statistic", "threshold", "priority", "message", "annunciated", "episode"};
   EXPECT_EQ(keys, expected);
 }
 
