@@ -392,7 +392,11 @@ void ChannelPipeline::RestartTimeline() {
 }
 
 bool ChannelPipeline::ConcludeKnownGood(ThresholdDesigner& designer) {
-  if (!monitor_.armed() && scaler_.ready() && monitor_.scale_settled()) TryArm(designer);
+  if (monitor_.armed()) {
+    (void)monitor_.CoverInControlRecord();
+  } else if (scaler_.ready() && monitor_.scale_settled()) {
+    TryArm(designer);
+  }
   for (Alarm& alarm : alarms_) alarm = Alarm(alarm.timing());
   monitor_.ResetCharts();
   closed_loop_steps_ = 0;

@@ -94,9 +94,11 @@ class ChannelPipeline {
   }
 
   // The recording just fed was known to be normal (`nightjar learn`): arm now if the
-  // residual scale has settled, even before warmup_samples, and forget every alarm the
-  // recording raised, silently (its departures were normal behaviour by definition).
-  // True when the channel is armed afterwards.
+  // residual scale has settled, even before warmup_samples; if the channel was armed
+  // already, raise its chart limits to cover what they reached on the recording
+  // (ResidualMonitor::CoverInControlRecord); and forget every alarm the recording raised,
+  // silently (its departures were normal behaviour by definition). True when the
+  // channel is armed afterwards.
   bool ConcludeKnownGood(ThresholdDesigner& designer);
 
   Status Acknowledge(AlarmCondition condition, TimestampUs now);

@@ -41,7 +41,29 @@ void ResidualMonitor::Arm(const Thresholds& thresholds) {
     ewma_lambda_for_spread_ = thresholds.ewma_lambda;
     spread_ewma_.Reset();
   }
+  cusum_record_ = 0.0;
+  ewma_record_ = 0.0;
+  spike_record_ = 0.0;
   armed_ = true;
+}
+
+bool ResidualMonitor::CoverInControlRecord() {
+  if (!armed_) return false;
+  // A chart whose record is r needs its limit times margin * r to leave r at 1 / margin.
+  // The CUSUM's sum ignores h below its cap, so scaling h scales its ratio the same way.
+  const auto raise = [](double record) {
+    return std::clamp(kSpikeTailMargin * record, 1.0, kMaxRecordRaise);
+  };
+  const double cusum_raise = raise(cusum_record_);
+  const double ewma_raise = raise(ewma_record_);
+  const double spike_raise = raise(spike_record_);
+  if (cusum_raise == 1.0 && ewma_raise == 1.0 && spike_raise == 1.0) return false;
+  Thresholds covered = thresholds_;
+  covered.cusum_h *= cusum_raise;
+  covered.ewma_l *= ewma_raise;
+  covered.spike_limit *= spike_raise;
+  Arm(covered);
+  return true;
 }
 
 void ResidualMonitor::ResetCharts() {
@@ -94,6 +116,11 @@ ResidualReading ResidualMonitor::Observe(double residual, bool learn) {
   }
   const auto cusum = cusum_.Add(cusum_input);
   ewma_.Add(ewma_input);
+  if (learn) {
+    cusum_record_ = std::max(cusum_record_, cusum_.ratio());
+    ewma_record_ = std::max(ewma_record_, ewma_.ratio());
+    spike_record_ = std::max(spike_record_, std::abs(reading.z) / thresholds_.spike_limit);
+  }
 
   reading.ratio = cusum_.ratio();
   reading.detector = Detector::kCusum;

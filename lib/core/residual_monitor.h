@@ -64,6 +64,19 @@ class ResidualMonitor {
   // Marks the start of the part of learning whose residual tail sets the spike limit.
   void StartTailWindow() { tail_window_open_ = true; }
   static constexpr double kSpikeTailMargin = 1.2;
+  // For a recording known to be normal (`nightjar learn`): raises the CUSUM decision
+  // interval, the EWMA limit factor and the spike limit so the largest ratio each chart
+  // reached on trusted samples since Arm() sits at 1 / kSpikeTailMargin, when it was
+  // higher: the learning tail rule above, carried on over the charted part of the
+  // recording (DESIGN-NOTES §2: the ARL tables assume residuals cleaner than a model's). One raise
+  // is at most kMaxRecordRaise, so a "normal" recording that held a real upset cannot blind the
+  // channel. Charts restart. Returns true when a limit moved. No effect unless armed.
+  bool CoverInControlRecord();
+  static constexpr double kMaxRecordRaise = 2.0;
+  // Largest CUSUM, EWMA and spike ratios on trusted samples since Arm() (0 before arming).
+  double cusum_record() const { return cusum_record_; }
+  double ewma_record() const { return ewma_record_; }
+  double spike_record() const { return spike_record_; }
   bool armed() const { return armed_; }
   // Largest trusted |z| since StartTailWindow() (frozen once armed): what Arm() raised the
   // spike limit to cover. Read by the threshold sweep, which arms charts of its own.
@@ -101,6 +114,10 @@ class ResidualMonitor {
   bool armed_ = false;
   bool tail_window_open_ = false;
   double learning_tail_ = 0.0;  // largest trusted |z| since StartTailWindow()
+  // Not checkpointed: a record covers one recording, concluded in the process that read it.
+  double cusum_record_ = 0.0;
+  double ewma_record_ = 0.0;
+  double spike_record_ = 0.0;
 };
 
 }  // namespace nightjar::core

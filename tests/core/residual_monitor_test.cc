@@ -4,6 +4,7 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <random>
 
@@ -118,6 +119,119 @@ TEST(ResidualMonitorTest, SustainedShiftSignalsAndSpikeSignalsOnSpikeChart) {
   r = monitor.Observe(12.0, false);
   EXPECT_GE(r.ratio, 1.0);
   EXPECT_EQ(r.detector, Detector::kSpike);
+}
+
+// Heavy-tailed, slowly wandering residuals: what an online-trained model leaves on plant
+// data (DESIGN-NOTES §2), and what the normal-theory ARL tables underestimate.
+class WanderingResiduals {
+ public:
+  explicit WanderingResiduals(std::uint64_t seed) : rng_(seed) {}
+  double Next() {
+    bias_ = 0.995 * bias_ + 0.1 * normal_(rng_);  // stationary sd 1.0, memory ~200 samples
+    return bias_ + tails_(rng_);                  // Student t, 3 degrees of freedom
+  }
+
+ private:
+  std::mt19937_64 rng_;
+  std::normal_distribution<double> normal_{0.0, 1.0};
+  std::student_t_distribution<double> tails_{3.0};
+  double bias_ = 0.0;
+};
+
+// Raises counted on `samples` residuals through the engine's default anomaly timing.
+int CountRaises(ResidualMonitor& monitor, WanderingResiduals& source, int samples,
+                double shift = 0.0) {
+  Alarm alarm(AlarmTiming{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2});
+  int raises = 0;
+  for (int i = 0; i < samples; ++i) {
+    const ResidualReading reading = monitor.Observe(source.Next() + shift, false);
+    const AlarmEdge edge =
+        alarm.Update(static_cast<TimestampUs>(i) * kMicrosPerSecond, reading.ratio);
+    if (edge == AlarmEdge::kRaise) ++raises;
+    if (edge == AlarmEdge::kClear) monitor.ResetCharts();
+  }
+  return raises;
+}
+
+TEST(ResidualMonitorTest, CoveringAKnownGoodRecordRaisesEachLimitByItsRecord) {
+  ResidualMonitor monitor(ResidualMonitorOptions{});
+  WanderingResiduals source(303);
+  for (int i = 0; i < 5000; ++i) monitor.Observe(source.Next(), true);
+  ThresholdDesigner designer;
+  monitor.Arm(*designer.Design(ThresholdOptions{}, 1.0));
+  const Thresholds designed = monitor.thresholds();
+  for (int i = 0; i < 86'400; ++i) monitor.Observe(source.Next(), true);  // the good day
+
+  const double cusum_record = monitor.cusum_record();
+  const double ewma_record = monitor.ewma_record();
+  const double spike_record = monitor.spike_record();
+  // The day must have crossed what the tables promised, or there is nothing to test.
+  ASSERT_GT(std::max({cusum_record, ewma_record, spike_record}), 1.0);
+  ASSERT_TRUE(monitor.CoverInControlRecord());
+  const auto expected = [](double record) {
+    return std::clamp(ResidualMonitor::kSpikeTailMargin * record, 1.0,
+                      ResidualMonitor::kMaxRecordRaise);
+  };
+  EXPECT_DOUBLE_EQ(monitor.thresholds().cusum_h, designed.cusum_h * expected(cusum_record));
+  EXPECT_DOUBLE_EQ(monitor.thresholds().ewma_l, designed.ewma_l * expected(ewma_record));
+  EXPECT_DOUBLE_EQ(monitor.thresholds().spike_limit, designed.spike_limit * expected(spike_record));
+  EXPECT_EQ(monitor.cusum_record(), 0.0) << "a new record starts with the new limits";
+}
+
+TEST(ResidualMonitorTest, CoveredLimitsSpareNuisanceAlarmsAndStillSeeAShift) {
+  ThresholdDesigner designer;
+  ResidualMonitor covered(ResidualMonitorOptions{});
+  ResidualMonitor tables_only(ResidualMonitorOptions{});
+  for (ResidualMonitor* monitor : {&covered, &tables_only}) {
+    WanderingResiduals learning(404);
+    for (int i = 0; i < 5000; ++i) monitor->Observe(learning.Next(), true);
+    monitor->Arm(*designer.Design(ThresholdOptions{}, 1.0));
+    for (int i = 0; i < 86'400; ++i) monitor->Observe(learning.Next(), true);
+  }
+  ASSERT_TRUE(covered.CoverInControlRecord());
+
+  // The next two days of the same process: fewer nuisance raises with covered limits.
+  WanderingResiduals next_days_a(505);
+  WanderingResiduals next_days_b(505);
+  const int covered_raises = CountRaises(covered, next_days_a, 2 * 86'400);
+  const int table_raises = CountRaises(tables_only, next_days_b, 2 * 86'400);
+  EXPECT_LT(covered_raises, table_raises / 2)
+      << covered_raises << " raises covered, " << table_raises << " with the tables alone";
+
+  RecordProperty("nuisance_raises_covered", std::to_string(covered_raises));
+  RecordProperty("nuisance_raises_tables", std::to_string(table_raises));
+
+  // A sustained shift of 6 (about 3.4 residual sigmas here) is still raised within 30
+  // samples: the raise is bounded (kMaxRecordRaise), so covering cannot blind the channel.
+  covered.ResetCharts();
+  WanderingResiduals shifted(606);
+  EXPECT_GE(CountRaises(covered, shifted, 30, 6.0), 1);
+}
+
+TEST(ResidualMonitorTest, ARecordThatHeldAnUpsetRaisesALimitAtMostTwofold) {
+  ResidualMonitor monitor(ResidualMonitorOptions{});
+  std::mt19937_64 rng(7);
+  std::normal_distribution<double> noise(0.0, 1.0);
+  for (int i = 0; i < 5000; ++i) monitor.Observe(noise(rng), true);
+  ThresholdDesigner designer;
+  monitor.Arm(*designer.Design(ThresholdOptions{}, 1.0));
+  const Thresholds designed = monitor.thresholds();
+  for (int i = 0; i < 600; ++i) monitor.Observe(5.0 + noise(rng), true);  // a real upset
+  EXPECT_GT(monitor.ewma_record(), 2.0);
+  ASSERT_TRUE(monitor.CoverInControlRecord());
+  EXPECT_DOUBLE_EQ(monitor.thresholds().ewma_l, designed.ewma_l * ResidualMonitor::kMaxRecordRaise);
+  // The CUSUM's sum is capped (cusum_cap, 1.5 h), so its record, and its raise, are too.
+  EXPECT_DOUBLE_EQ(monitor.cusum_record(), 0.0);
+  EXPECT_DOUBLE_EQ(
+      monitor.thresholds().cusum_h,
+      designed.cusum_h * ResidualMonitor::kSpikeTailMargin * ResidualMonitorOptions{}.cusum_cap);
+}
+
+TEST(ResidualMonitorTest, CoveringDoesNothingBeforeArming) {
+  ResidualMonitor monitor(ResidualMonitorOptions{});
+  for (int i = 0; i < 1000; ++i) monitor.Observe(std::sin(i * 0.1), true);
+  EXPECT_FALSE(monitor.CoverInControlRecord());
+  EXPECT_FALSE(monitor.armed());
 }
 
 }  // namespace
