@@ -44,13 +44,15 @@ void ResidualMonitor::Arm(const Thresholds& thresholds) {
   cusum_record_ = 0.0;
   ewma_record_ = 0.0;
   spike_record_ = 0.0;
+  record_upper_ = 0.0;
+  record_lower_ = 0.0;
   armed_ = true;
 }
 
 bool ResidualMonitor::CoverInControlRecord() {
   if (!armed_) return false;
   // A chart whose record is r needs its limit times margin * r to leave r at 1 / margin.
-  // The CUSUM's sum ignores h below its cap, so scaling h scales its ratio the same way.
+  // The uncapped CUSUM sums do not depend on h, so scaling h scales their ratio the same way.
   const auto raise = [](double record) {
     return std::clamp(kSpikeTailMargin * record, 1.0, kMaxRecordRaise);
   };
@@ -69,6 +71,8 @@ bool ResidualMonitor::CoverInControlRecord() {
 void ResidualMonitor::ResetCharts() {
   cusum_.Reset();
   ewma_.Reset();
+  record_upper_ = 0.0;
+  record_lower_ = 0.0;
 }
 
 double ResidualMonitor::cusum_inflation() const {
@@ -117,7 +121,11 @@ ResidualReading ResidualMonitor::Observe(double residual, bool learn) {
   const auto cusum = cusum_.Add(cusum_input);
   ewma_.Add(ewma_input);
   if (learn) {
-    cusum_record_ = std::max(cusum_record_, cusum_.ratio());
+    const double k = thresholds_.cusum_k;
+    record_upper_ = std::max(0.0, record_upper_ + cusum_input - k);
+    record_lower_ = std::max(0.0, record_lower_ - cusum_input - k);
+    cusum_record_ =
+        std::max(cusum_record_, std::max(record_upper_, record_lower_) / thresholds_.cusum_h);
     ewma_record_ = std::max(ewma_record_, ewma_.ratio());
     spike_record_ = std::max(spike_record_, std::abs(reading.z) / thresholds_.spike_limit);
   }

@@ -68,9 +68,12 @@ class ResidualMonitor {
   // interval, the EWMA limit factor and the spike limit so the largest ratio each chart
   // reached on trusted samples since Arm() sits at 1 / kSpikeTailMargin, when it was
   // higher: the learning tail rule above, carried on over the charted part of the
-  // recording (DESIGN-NOTES §2: the ARL tables assume residuals cleaner than a model's). One raise
-  // is at most kMaxRecordRaise, so a "normal" recording that held a real upset cannot blind the
-  // channel. Charts restart. Returns true when a limit moved. No effect unless armed.
+  // recording (DESIGN-NOTES §2: the normal-theory limits fire on real residuals). The
+  // CUSUM's record is taken from an uncapped copy of its sums, since the chart's own stop
+  // at cusum_cap. One raise is at most kMaxRecordRaise, so a "normal" recording that held
+  // a real upset cannot blind the channel (a tenfold bound spared no more false alarms on
+  // the open datasets; tests/quality/RESULTS.md). Charts restart. Returns
+  // true when a limit moved. No effect unless armed.
   bool CoverInControlRecord();
   static constexpr double kMaxRecordRaise = 2.0;
   // Largest CUSUM, EWMA and spike ratios on trusted samples since Arm() (0 before arming).
@@ -116,6 +119,8 @@ class ResidualMonitor {
   double learning_tail_ = 0.0;  // largest trusted |z| since StartTailWindow()
   // Not checkpointed: a record covers one recording, concluded in the process that read it.
   double cusum_record_ = 0.0;
+  double record_upper_ = 0.0;  // uncapped CUSUM sums over trusted samples, for the record
+  double record_lower_ = 0.0;
   double ewma_record_ = 0.0;
   double spike_record_ = 0.0;
 };
