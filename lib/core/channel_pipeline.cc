@@ -34,6 +34,18 @@ int PredictorInputs(const ChannelOptions& options) {
 constexpr double kClosedLoopDamping = 0.95;
 constexpr int kMaxClosedLoopSteps = 300;
 
+// Sample-and-hold signals (a sampling analyser, a value a gateway re-sends until it
+// changes): when most recent samples repeat the previous value exactly and the holds
+// are regular (runs of about the same length: an update cycle), a repeat carries no new
+// measurement and is not charted. Charting it would let one normal update stand for the
+// whole hold: the closed-loop forecast holds off while the value holds, and the CUSUM
+// adds up the same residual for every repeat. Irregular holds (a steady value with rare
+// excursions, a quantised slow signal) stay charted: there a change is the news.
+constexpr double kHeldSignalShare = 0.5;
+constexpr double kHeldShareAlpha = 1.0 / 64.0;
+constexpr double kHoldRunAlpha = 1.0 / 16.0;
+constexpr double kMaxHoldRunSpread = 0.25;  // sd of the run length over its mean
+
 // Increments smaller than this fraction of the level scale are noise to the model.
 constexpr double kIncrementScaleFloor = 1e-3;
 
@@ -167,8 +179,15 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
     ++counters_.rejected;
     return;
   }
+  const bool repeat = counters_.accepted_once && value == counters_.last_value;
+  NoteRepeat(repeat);
   counters_.last_value = value;
+  counters_.accepted_once = true;
   MatchEvents(context, out);
+  if (repeat && HoldsItsSamples()) {
+    ++counters_.held;
+    return;
+  }
 
   if (!has_last_used_) {  // first sample, or first after a gap: no increment yet
     last_used_ = value;
@@ -274,6 +293,26 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
     predictor_.Observe(features_.data(), learn, workspace);
   }
   last_used_ = used;
+}
+
+void ChannelPipeline::NoteRepeat(bool repeat) {
+  held_share_ += kHeldShareAlpha * ((repeat ? 1.0 : 0.0) - held_share_);
+  if (repeat) {
+    ++hold_run_;
+    return;
+  }
+  const double run = static_cast<double>(hold_run_);
+  hold_run_mean_ += kHoldRunAlpha * (run - hold_run_mean_);
+  hold_run_square_ += kHoldRunAlpha * (run * run - hold_run_square_);
+  hold_run_ = 0;
+}
+
+bool ChannelPipeline::HoldsItsSamples() const {
+  if (held_share_ < kHeldSignalShare || hold_run_mean_ <= 0.0) return false;
+  const double variance = std::max(0.0, hold_run_square_ - hold_run_mean_ * hold_run_mean_);
+  // A run longer than any seen in a regular cycle is a stop, not a hold: chart it again.
+  if (static_cast<double>(hold_run_) > 2.0 * hold_run_mean_ + 1.0) return false;
+  return std::sqrt(variance) <= kMaxHoldRunSpread * hold_run_mean_;
 }
 
 double ChannelPipeline::IncrementScale() const {

@@ -55,6 +55,9 @@ struct ChannelStatus {
   std::int64_t rejected = 0;      // not finite or out of range: not fed to the model
   std::int64_t out_of_order = 0;  // duplicate or earlier timestamps, dropped
   double last_value = 0.0;
+  bool accepted_once = false;  // last_value holds a sample
+  // Exact repeats of a sample-and-hold signal, not charted (no new measurement).
+  std::int64_t held = 0;
   double last_expected = 0.0;
   double last_z = 0.0;
   // Residual standard deviation in engineering units: expected +- 3 of these is the
@@ -145,6 +148,9 @@ class ChannelPipeline {
   void MatchEvents(const Context& context, std::vector<Alert>& out);
   void FillFeatures(TimestampUs time, double increment, double level);
   double IncrementScale() const;
+  void NoteRepeat(bool repeat);
+  // A sample-and-hold signal in a regular hold: a repeat is no new measurement.
+  bool HoldsItsSamples() const;
 
   std::string name_;
   ChannelOptions options_;
@@ -167,7 +173,13 @@ class ChannelPipeline {
   bool flatline_check_enabled_ = true;
   bool arm_failed_ = false;
   std::int64_t learnt_samples_ = 0;  // accepted samples seen while learning
-  bool relearning_ = false;          // learning again after a new operating point
+  // Sample and hold: recent share of exact repeats, the present run of repeats, and the
+  // smoothed length of finished runs and its square.
+  double held_share_ = 0.0;
+  std::int64_t hold_run_ = 0;
+  double hold_run_mean_ = 0.0;
+  double hold_run_square_ = 0.0;
+  bool relearning_ = false;  // learning again after a new operating point
   // Resume hold (ResumeOptions): charted samples left, and the levels seen in it. Not
   // checkpointed: a restart begins a new hold.
   int hold_left_ = 0;

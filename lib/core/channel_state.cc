@@ -211,6 +211,10 @@ class ChannelStateAccess {
     a(p.flatline_check_enabled_);
     a(p.arm_failed_);
     a(p.learnt_samples_);
+    a(p.held_share_);
+    a(p.hold_run_);
+    a(p.hold_run_mean_);
+    a(p.hold_run_square_);
     a(p.relearning_);
     a(p.last_reading_.z);
     a(p.last_reading_.ratio);
@@ -385,6 +389,8 @@ class ChannelStateAccess {
     a(s.rejected);
     a(s.out_of_order);
     a(s.last_value);
+    a(s.accepted_once);
+    a(s.held);
     a(s.last_expected);
     a(s.last_z);
     a(s.last_residual_sigma);
