@@ -116,6 +116,8 @@ const std::array kKeys = {
     KeySpec{"resume.relearn_samples", NIGHTJAR_FIELD(resume.relearn_samples), AtLeast(2), "samples",
             "samples a re-learning channel learns before it arms again (at least "
             "scaler.warmup_samples)"},
+    KeySpec{"resume.relearn_with_asset", NIGHTJAR_FIELD(resume.relearn_with_asset), None(), "",
+            "re-learn with the asset when another of its channels re-learns at the same resume"},
 
     KeySpec{"sensor.min_value", NIGHTJAR_FIELD(sensor.min_value), AnyNumber(), "channel unit",
             "instrument span, low end; below it is out of range; -.inf = no bound"},

@@ -147,8 +147,8 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   // another operating point after the silence: hold anomaly alarms and check the level.
   // A restart that follows on within the gap limit continues as if nothing happened.
   if (after_gap || new_timeline) {
-    BeginResumeHold(new_timeline || (has_last_time_ && ToSeconds(time - last_time_) >
-                                                           options_.resume.relearn_after_s));
+    BeginResumeHold(time, new_timeline || (has_last_time_ && ToSeconds(time - last_time_) >
+                                                                 options_.resume.relearn_after_s));
   }
   has_last_time_ = true;
   last_time_ = time;
@@ -366,17 +366,20 @@ int ChannelPipeline::ArmAfterSamples() const {
                      : options_.warmup_samples;
 }
 
-void ChannelPipeline::BeginResumeHold(bool check_level) {
+void ChannelPipeline::BeginResumeHold(TimestampUs time, bool check_level) {
   hold_left_ = options_.resume.hold_samples;
   hold_checks_level_ = check_level;
   hold_levels_.Reset();
+  checked_resume_.reset();
+  if (check_level && hold_left_ > 0) checked_resume_ = time;
 }
 
 void ChannelPipeline::ContinueResumeHold(const Context& context, std::vector<Alert>& out) {
   if (--hold_left_ > 0) return;
   const double off_sd = std::abs(hold_levels_.mean() - scaler_.mean()) / scaler_.scale();
   if (hold_checks_level_ && off_sd > options_.resume.relearn_beyond_sd) {
-    Relearn(context, out);
+    relearnt_resume_ = checked_resume_;
+    Relearn(context, "is at an operating point the model never learnt; re-learning", out);
     return;
   }
   // The charts start afresh: the sums of the recurrent state's start-up transient (and of
@@ -385,7 +388,21 @@ void ChannelPipeline::ContinueResumeHold(const Context& context, std::vector<Ale
   monitor_.ResetCharts();
 }
 
-void ChannelPipeline::Relearn(const Context& context, std::vector<Alert>& out) {
+bool ChannelPipeline::RelearnWithAsset(TimestampUs sibling_resume, TimestampUs now,
+                                       std::vector<Alert>& out) {
+  if (!options_.resume.relearn_with_asset || !monitor_.armed() || !checked_resume_) return false;
+  const TimestampUs hold = std::max<TimestampUs>(0, now - sibling_resume);
+  const TimestampUs apart = *checked_resume_ > sibling_resume ? *checked_resume_ - sibling_resume
+                                                              : sibling_resume - *checked_resume_;
+  if (apart > hold) return false;
+  const Context context{now, counters_.last_value, counters_.last_expected, counters_.last_z};
+  Relearn(context, "its asset is at an operating point the model never learnt; re-learning", out);
+  if (tap_ != nullptr) tap_->OnRelearn(tap_id_);
+  return true;
+}
+
+void ChannelPipeline::Relearn(const Context& context, std::string_view why,
+                              std::vector<Alert>& out) {
   // An alarm from before the hole goes, and says why.
   if (alarm_for(AlarmCondition::kAnomaly).Withdraw(context.time) == AlarmEdge::kClear) {
     Alert alert;
@@ -402,7 +419,7 @@ void ChannelPipeline::Relearn(const Context& context, std::vector<Alert>& out) {
     alert.priority = options_.anomaly_priority;
     alert.message = name_ +
                     ": anomaly alarm cleared: " + FormatWithUnit(context.value, options_.unit) +
-                    " is at an operating point the model never learnt; re-learning";
+                    " " + std::string(why);
     out.push_back(std::move(alert));
   }
   // The model's weights are kept (the dynamics carry over); the scales it sees its inputs
@@ -417,6 +434,7 @@ void ChannelPipeline::Relearn(const Context& context, std::vector<Alert>& out) {
   learnt_samples_ = 0;
   relearning_ = true;
   hold_left_ = 0;
+  checked_resume_.reset();
   ++counters_.relearns;
 }
 

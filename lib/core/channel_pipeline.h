@@ -104,6 +104,20 @@ class ChannelPipeline {
   // channel is armed afterwards.
   bool ConcludeKnownGood(ThresholdDesigner& designer);
 
+  // When the resume began whose level check last made this channel re-learn (the
+  // ResumeOptions check, not a sibling's); nullopt if none has. Read by the engine.
+  std::optional<TimestampUs> relearnt_resume() const { return relearnt_resume_; }
+  // Times the channel re-learnt at a new operating point (ChannelStatus::relearns).
+  std::int64_t relearn_count() const { return counters_.relearns; }
+  // A channel of this one's asset, resumed at `sibling_resume`, found at `now` that it
+  // came back at an operating point it never learnt. The operating point belongs to the
+  // asset, not the channel (DESIGN-NOTES §1, §4), so this channel re-learns too when it
+  // follows its asset (resume.relearn_with_asset), is armed, and resumed with a level
+  // check no further from `sibling_resume` than that sibling's hold lasted (`now` -
+  // `sibling_resume`): the same resume. An alarm raised since is withdrawn with a clear
+  // that says why. True when it re-learns.
+  bool RelearnWithAsset(TimestampUs sibling_resume, TimestampUs now, std::vector<Alert>& out);
+
   Status Acknowledge(AlarmCondition condition, TimestampUs now);
   Status Shelve(AlarmCondition condition, TimestampUs now, TimestampUs until);
   Status Unshelve(AlarmCondition condition, TimestampUs now, std::vector<Alert>& out);
@@ -138,9 +152,10 @@ class ChannelPipeline {
   void TryArm(ThresholdDesigner& designer);
   int ArmAfterSamples() const;
   // `check_level`: compare the level over the hold with the learnt one (ResumeOptions).
-  void BeginResumeHold(bool check_level);
+  void BeginResumeHold(TimestampUs time, bool check_level);
   void ContinueResumeHold(const Context& context, std::vector<Alert>& out);
-  void Relearn(const Context& context, std::vector<Alert>& out);
+  // `why` ends the message of the clear that withdraws an active anomaly alarm.
+  void Relearn(const Context& context, std::string_view why, std::vector<Alert>& out);
   void RestartTimeline();  // a restored channel's stream resumes on an earlier clock
 
   void EmitEdge(AlarmCondition condition, AlarmEdge edge, const Context& context,
@@ -185,6 +200,10 @@ class ChannelPipeline {
   int hold_left_ = 0;
   bool hold_checks_level_ = false;
   RunningMoments hold_levels_;
+  // The last resume with a level check (until the channel re-learns), and the one whose
+  // check made it re-learn. Not checkpointed: a restart begins a new resume.
+  std::optional<TimestampUs> checked_resume_;
+  std::optional<TimestampUs> relearnt_resume_;
   ResidualReading last_reading_;
   ChannelStatus counters_;
   ResidualTap* tap_ = nullptr;

@@ -186,8 +186,21 @@ void Engine::Process(const Sample& sample, std::vector<Alert>& out) {
 void Engine::Process(ChannelId channel, TimestampUs time, double value, std::vector<Alert>& out) {
   const std::size_t before = out.size();
   if (!clock_started_ || time >= clock_ + kGapSweepInterval) AdvanceClock(time, out);
-  channels_[channel]->Process(time, value, designer_, *workspace_, out);
+  ChannelPipeline& pipeline = *channels_[channel];
+  const std::int64_t relearns = pipeline.relearn_count();
+  pipeline.Process(time, value, designer_, *workspace_, out);
+  if (pipeline.relearn_count() != relearns) RelearnAssetWith(channel, time, out);
   if (out.size() != before) Group(out, before);
+}
+
+void Engine::RelearnAssetWith(ChannelId channel, TimestampUs now, std::vector<Alert>& out) {
+  const std::optional<TimestampUs> resume = channels_[channel]->relearnt_resume();
+  const std::string& asset = asset_of_[channel];
+  if (!resume || asset.empty()) return;
+  // Rare (once per resume at a new operating point), so a scan of all channels is fine.
+  for (ChannelId id = 0; id < channels_.size(); ++id) {
+    if (id != channel && asset_of_[id] == asset) channels_[id]->RelearnWithAsset(*resume, now, out);
+  }
 }
 
 void Engine::NoteDiscontinuity(ChannelId channel, Discontinuity reason) {

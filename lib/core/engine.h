@@ -133,6 +133,9 @@ class Engine {
   };
   Result<ChannelPipeline*> Find(std::string_view name);
   void EnsureWorkspace(const ChannelOptions& options);
+  // `channel` re-learnt at the level check of a resume: its asset's other channels that
+  // resumed with it re-learn too (ChannelPipeline::RelearnWithAsset).
+  void RelearnAssetWith(ChannelId channel, TimestampUs now, std::vector<Alert>& out);
   // Fills the grouping fields of out[from...] (AlarmEpisodes::Annotate).
   void Group(std::vector<Alert>& out, std::size_t from);
   // After `id`'s pipeline was replaced by a restored one: its episode membership follows

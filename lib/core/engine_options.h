@@ -54,6 +54,12 @@ struct ResumeOptions {
   // weights are kept) before it arms again, and at least scaler.warmup_samples. Default 512: one
   // time constant of the default residual-scale average (residual.scale_alpha = 1/512).
   int relearn_samples = 512;
+  // When another channel of this one's asset re-learns at the level check of the same
+  // resume, this one re-learns with it, whatever its own level: an operating point is
+  // the asset's (a pump at another flow also draws another current), and a channel that
+  // moved less than relearn_beyond_sd would alarm on the old model. Off for a channel
+  // whose level the asset does not set (an ambient temperature). Default true.
+  bool relearn_with_asset = true;
 };
 
 struct ChannelOptions {

@@ -39,6 +39,9 @@ class ResidualTap {
  public:
   virtual ~ResidualTap() = default;
   virtual void OnResidual(const ResidualTapPoint& point) = 0;
+  // The channel dropped its scales between samples, with its asset (ChannelPipeline::
+  // RelearnWithAsset), and learns again from its next sample.
+  virtual void OnRelearn(std::uint32_t /*channel*/) {}
 };
 
 }  // namespace nightjar::core

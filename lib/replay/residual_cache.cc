@@ -31,6 +31,11 @@ class Recorder final : public core::ResidualTap {
     channel.flags.push_back(flags);
   }
 
+  void OnRelearn(std::uint32_t channel) override {
+    if (channel >= channels_.size()) channels_.resize(channel + 1);
+    channels_[channel].relearned = true;
+  }
+
  private:
   std::vector<ChannelResidualCache>& channels_;
 };

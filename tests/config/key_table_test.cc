@@ -54,7 +54,7 @@ TEST(KeyTableTest, HasOneRowPerChannelOptionsField) {
   EXPECT_EQ(CountFields<core::SensorHealthOptions>(), RowsIn("sensor"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("anomaly_alarm"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("sensor_alarm"));
-  EXPECT_EQ(ChannelKeys().size(), 51u);
+  EXPECT_EQ(ChannelKeys().size(), 52u);
   // One `events:` entry.
   EXPECT_EQ(CountFields<core::EventTemplate>(), EventTemplateKeys().size());
 }
