@@ -103,6 +103,13 @@ const std::array kKeys = {
     KeySpec{"thresholds.spike_limit", NIGHTJAR_FIELD(thresholds.spike_limit), AtLeast(0), "sigma",
             "individual-residual spike limit; 0 derives it from the budget"},
 
+    KeySpec{"level.enabled", NIGHTJAR_FIELD(level.enabled), None(), "",
+            "chart the departure from the learnt level besides the forecast residual"},
+    KeySpec{"level.baseline_alpha", NIGHTJAR_FIELD(level.baseline_alpha), OpenClosed(0, 1),
+            "1/sample", "per-sample weight of the learnt level (it learns only while in control)"},
+    KeySpec{"level.false_alarms_per_day", NIGHTJAR_FIELD(level.false_alarms_per_day), Above(0),
+            "1/day", "budget of false level alerts per channel per day"},
+
     KeySpec{"resume.hold_samples", NIGHTJAR_FIELD(resume.hold_samples), AtLeast(0), "samples",
             "after a restart, a gap or a new time line, anomaly alarms wait this long while the "
             "level is compared with the learnt one; 0 = no wait, no check"},

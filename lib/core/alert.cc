@@ -32,6 +32,8 @@ const char* DetectorName(Detector detector) {
       return "gap";
     case Detector::kTemplate:
       return "template";
+    case Detector::kLevel:
+      return "level";
   }
   return "unknown";
 }

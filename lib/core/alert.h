@@ -27,6 +27,7 @@ enum class Detector {
   kFlatline,   // value stuck for too many samples
   kGap,        // no sample for too long
   kTemplate,   // expected-event template matcher
+  kLevel,      // CUSUM or EWMA on the departure from the learnt level (core/level_monitor.h)
 };
 
 enum class AlertPhase { kRaise, kClear };

@@ -109,6 +109,7 @@ ChannelPipeline::ChannelPipeline(std::string name, const ChannelOptions& options
       scaler_(options.scaler),
       predictor_(PredictorOptionsFor(options, seed)),
       monitor_(options.residual),
+      level_(options.level, options.residual),
       alarms_{{Alarm(options.anomaly_alarm), Alarm(options.sensor_alarm),
                Alarm(options.sensor_alarm), Alarm(options.sensor_alarm),
                Alarm(options.sensor_alarm)}},
@@ -225,11 +226,26 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   const bool gate_open =
       trusted && (!monitor_.scale_settled() || std::abs(z_now) < kLearnGateSigmas);
 
-  const ResidualReading reading = monitor_.Observe(residual, gate_open);
-  context.z = reading.z;
+  const ResidualReading forecast_reading = monitor_.Observe(residual, gate_open);
+  context.z = forecast_reading.z;
+  // The alarm follows whichever chart is further over its limit: the forecast residual's
+  // or the level's (core/level_monitor.h), with the level's baseline as the expected value.
+  ResidualReading reading = forecast_reading;
+  Context alarm_context = context;
+  double level_ratio = 0.0;
+  if (options_.level.enabled) {
+    if (!level_.started()) level_.Start(scaler_.mean(), 0);
+    const ResidualReading level = level_.Observe(value, scaler_.scale(), !flatline && !holding);
+    level_ratio = level.ratio;
+    if (level.ratio > reading.ratio) {
+      reading = level;
+      alarm_context.expected = level_.baseline();
+      alarm_context.z = level.z;
+    }
+  }
   last_reading_ = reading;
   counters_.last_expected = context.expected;
-  counters_.last_z = reading.z;
+  counters_.last_z = forecast_reading.z;
   counters_.last_residual_sigma = monitor_.sigma() * scaler_.scale();
   counters_.last_ratio = reading.ratio;
   counters_.last_detector = reading.detector;
@@ -243,7 +259,7 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
       tapped.relearned = !monitor_.armed();
       tapped.charts_reset = hold_left_ == 0 && !tapped.relearned;
     } else {
-      UpdateAnomalyAlarm(reading, context, out);
+      UpdateAnomalyAlarm(reading, alarm_context, out);
     }
   } else {
     hold_left_ = 0;  // a learning channel raises nothing: there is nothing to hold
@@ -263,6 +279,7 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
     tapped.time = time;
     tapped.residual = residual;
     tapped.flatline = flatline;
+    tapped.level_ratio = level_ratio;
     tapped.sample_period_s = tapped.armed ? period_.period_s() : 0.0;
     tap_->OnResidual(tapped);
   }
@@ -275,10 +292,10 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   // with the measurements (and stays open loop until the channel is back to normal) so
   // a lasting change of level cannot hold it off for ever.
   const bool in_alarm = alarm(AlarmCondition::kAnomaly).active();
-  if (!in_alarm && std::abs(reading.z) < kSuspectSigmas) held_out_ = false;
+  if (!in_alarm && std::abs(forecast_reading.z) < kSuspectSigmas) held_out_ = false;
   if (closed_loop_steps_ >= kMaxClosedLoopSteps) held_out_ = true;  // re-sync until normal
-  const bool suspect =
-      monitor_.armed() && !held_out_ && (in_alarm || std::abs(reading.z) >= kSuspectSigmas);
+  const bool suspect = monitor_.armed() && !held_out_ &&
+                       (in_alarm || std::abs(forecast_reading.z) >= kSuspectSigmas);
   closed_loop_steps_ = suspect ? closed_loop_steps_ + 1 : 0;
   const double damping = std::pow(kClosedLoopDamping, static_cast<double>(closed_loop_steps_));
   const double used = suspect ? last_used_ + damping * predicted_increment : value;
@@ -386,6 +403,14 @@ void ChannelPipeline::ContinueResumeHold(const Context& context, std::vector<Ale
   // a glitch in the hold) would otherwise raise now. A fault present since the resume
   // raises within the charts' usual delay.
   monitor_.ResetCharts();
+  // After a long hole the level over the hold passed the check: the plant came back near
+  // the learnt operating point, and the level chart measures from where it came back, not
+  // from where it was before (a unit restarted a degree warmer is not a fault).
+  if (hold_checks_level_ && level_.started()) {
+    level_.Start(hold_levels_.mean(), hold_levels_.count());
+  } else {
+    level_.ResetCharts();
+  }
 }
 
 bool ChannelPipeline::RelearnWithAsset(TimestampUs sibling_resume, TimestampUs now,
@@ -427,6 +452,7 @@ void ChannelPipeline::Relearn(const Context& context, std::string_view why,
   scaler_ = InputScaler(options_.scaler);
   increment_moments_ = RunningMoments();
   monitor_ = ResidualMonitor(options_.residual);
+  level_ = LevelMonitor(options_.level, options_.residual);
   predictor_.ResetSequence();
   has_last_used_ = false;
   closed_loop_steps_ = 0;
@@ -451,11 +477,13 @@ void ChannelPipeline::RestartTimeline() {
 bool ChannelPipeline::ConcludeKnownGood(ThresholdDesigner& designer) {
   if (monitor_.armed()) {
     (void)monitor_.CoverInControlRecord();
+    if (level_.armed()) (void)level_.CoverInControlRecord();
   } else if (scaler_.ready() && monitor_.scale_settled()) {
     TryArm(designer);
   }
   for (Alarm& alarm : alarms_) alarm = Alarm(alarm.timing());
   monitor_.ResetCharts();
+  level_.ResetCharts();
   closed_loop_steps_ = 0;
   held_out_ = false;
   return monitor_.armed();
@@ -471,6 +499,12 @@ void ChannelPipeline::TryArm(ThresholdDesigner& designer) {
     return;
   }
   monitor_.Arm(*thresholds);
+  if (options_.level.enabled) {
+    ThresholdOptions level_budget;
+    level_budget.false_alarms_per_day = options_.level.false_alarms_per_day;
+    Result<Thresholds> level = designer.Design(level_budget, period_.period_s());
+    if (level.ok()) level_.Arm(*level);
+  }
   scaler_.Freeze();
   relearning_ = false;
 }

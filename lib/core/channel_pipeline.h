@@ -16,6 +16,7 @@
 #include "core/alert.h"
 #include "core/engine_options.h"
 #include "core/input_scaler.h"
+#include "core/level_monitor.h"
 #include "core/lstm_predictor.h"
 #include "core/residual_monitor.h"
 #include "core/residual_tap.h"
@@ -175,6 +176,7 @@ class ChannelPipeline {
   RunningMoments increment_moments_;  // spread of sample-to-sample increments
   LstmPredictor predictor_;
   ResidualMonitor monitor_;
+  LevelMonitor level_;
   std::array<Alarm, kAlarmConditionCount> alarms_;
   std::vector<float> features_;
   std::vector<TemplateMatcher> matchers_;  // one per expected-event template

@@ -194,6 +194,11 @@ class ChannelStateAccess {
     Moments(a, p.increment_moments_);
     Predictor(a, p.predictor_);
     Monitor(a, p.monitor_);
+    Monitor(a, p.level_.charts_);
+    a(p.level_.baseline_);
+    a(p.level_.baseline_samples_);
+    a(p.level_.started_);
+    a(p.level_.signalling_);
     for (auto& alarm : p.alarms_) AlarmFields(a, alarm);
     a(p.features_);
     a.Check(p.features_.size() == static_cast<std::size_t>(p.predictor_.options_.input_size),
@@ -231,7 +236,7 @@ class ChannelStateAccess {
   }
 
  private:
-  static constexpr int kDetectorCount = static_cast<int>(Detector::kTemplate) + 1;
+  static constexpr int kDetectorCount = static_cast<int>(Detector::kLevel) + 1;
   static constexpr int kChannelStateCount = static_cast<int>(ChannelState::kStale) + 1;
   static constexpr int kAlarmStateCount = static_cast<int>(AlarmState::kOutOfService) + 1;
 
@@ -452,6 +457,9 @@ std::uint64_t OptionsFingerprint(const ChannelOptions& o) {
   w.F64(t.ewma_lambda);
   w.F64(t.ewma_l);
   w.F64(t.spike_limit);
+  w.U8(o.level.enabled ? 1 : 0);
+  w.F64(o.level.baseline_alpha);
+  w.F64(o.level.false_alarms_per_day);
   w.U32(static_cast<std::uint32_t>(o.events.size()));
   for (const EventTemplate& e : o.events) {
     w.String(e.name);

@@ -40,6 +40,13 @@ Status ValidateChannelOptions(const ChannelOptions& options) {
     return Invalid("warmup_samples", "must be >= scaler.warmup_samples (" +
                                          std::to_string(options.scaler.warmup_samples) + ")");
   }
+  if (!(options.level.baseline_alpha > 0.0 && options.level.baseline_alpha <= 1.0)) {
+    return Invalid("level.baseline_alpha", "must be in (0, 1]");
+  }
+  if (!(options.level.false_alarms_per_day > 0.0) ||
+      !std::isfinite(options.level.false_alarms_per_day)) {
+    return Invalid("level.false_alarms_per_day", "must be > 0 (alerts per day)");
+  }
   if (options.resume.hold_samples < 0) return Invalid("resume.hold_samples", "must be >= 0");
   if (!(options.resume.relearn_beyond_sd > 0.0) ||
       !std::isfinite(options.resume.relearn_beyond_sd)) {

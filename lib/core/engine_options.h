@@ -13,6 +13,7 @@
 #include "core/alarm.h"
 #include "core/alert.h"
 #include "core/input_scaler.h"
+#include "core/level_monitor.h"
 #include "core/lstm_predictor.h"
 #include "core/residual_monitor.h"
 #include "core/sensor_health.h"
@@ -92,6 +93,8 @@ struct ChannelOptions {
   LstmPredictorOptions predictor;
   ResidualMonitorOptions residual;
   ThresholdOptions thresholds;
+  // The departure from the learnt level, charted besides the residual (core/level_monitor.h).
+  LevelOptions level;
   ResumeOptions resume;
   // Flatline check on by default: 600 identical samples (10 min at 1 Hz). A channel that
   // holds its value while learning switches the check off for itself (a setpoint, a

@@ -128,7 +128,7 @@ class LstmPredictor {
   // features[0] of the sample after x; and beside it the recurrent state before x,
   // [h (H); c (H)], stored as bfloat16. That state only seeds a training window and was
   // computed under older weights anyway, so 8 mantissa bits lose nothing that matters,
-  // and halving it keeps a whole channel within 64 KiB at H = 32.
+  // and halving it keeps a whole channel within about 64 KiB at H = 32.
   Eigen::MatrixXf ring_;
   Eigen::Matrix<std::uint16_t, Eigen::Dynamic, Eigen::Dynamic> states_;
   Eigen::VectorXf start_h_;  // window-start state decoded for training

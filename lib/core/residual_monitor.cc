@@ -78,6 +78,7 @@ void ResidualMonitor::ResetCharts() {
 double ResidualMonitor::cusum_inflation() const {
   // Before the measured factor is trustworthy, fall back to the AR(1) factor.
   if (spread_cusum_.count() < kInflationSamples) {
+    if (largest_until_measured_) return kMaxInflation;
     return CusumAutocorrelationFactor(autocorrelation_.value());
   }
   return std::clamp(spread_cusum_.stddev() / IndependentSpread(kCusumSpreadLambda), 1.0,
@@ -86,6 +87,7 @@ double ResidualMonitor::cusum_inflation() const {
 
 double ResidualMonitor::ewma_inflation() const {
   if (spread_ewma_.count() < kInflationSamples) {
+    if (largest_until_measured_) return kMaxInflation;
     return EwmaAutocorrelationFactor(ewma_lambda_for_spread_, autocorrelation_.value());
   }
   return std::clamp(spread_ewma_.stddev() / IndependentSpread(ewma_lambda_for_spread_), 1.0,

@@ -96,6 +96,11 @@ class ResidualMonitor {
   double sigma() const { return scale_.sigma(); }
   bool scale_settled() const { return scale_.settled(); }
   double autocorrelation() const { return autocorrelation_.value(); }
+  // Until the inflation factors below are measured (enough trusted samples), take the
+  // largest one allowed instead of the AR(1) stand-in: for an input whose correlation
+  // lag-1 misses (a level that follows a load cycle) the stand-in is far too small.
+  // Set by the owner after construction; not part of a checkpoint.
+  void AssumeLargestInflationUntilMeasured() { largest_until_measured_ = true; }
   // Present variance-inflation factors (>= 1) applied to the CUSUM and EWMA inputs.
   double cusum_inflation() const;
   double ewma_inflation() const;
@@ -115,6 +120,7 @@ class ResidualMonitor {
   CusumDetector cusum_;
   EwmaDetector ewma_;
   bool armed_ = false;
+  bool largest_until_measured_ = false;
   bool tail_window_open_ = false;
   double learning_tail_ = 0.0;  // largest trusted |z| since StartTailWindow()
   // Not checkpointed: a record covers one recording, concluded in the process that read it.

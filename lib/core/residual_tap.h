@@ -20,6 +20,9 @@ struct ResidualTapPoint {
   TimestampUs time = 0;
   double residual = 0.0;  // scaled residual as given to ResidualMonitor::Observe
   bool flatline = false;  // the sample was flat (not trusted for learning)
+  // The level chart's ratio (core/level_monitor.h; 0 when off or not armed). It depends on
+  // no threshold setting the sweep varies, so it is recorded, not re-run.
+  double level_ratio = 0.0;
   // Learning-phase milestones reached just after this sample's Observe, in that order.
   bool tail_window_started = false;  // ResidualMonitor::StartTailWindow was called
   bool armed = false;                // ResidualMonitor::Arm was called

@@ -15,7 +15,7 @@ namespace {
 
 static_assert(static_cast<std::size_t>(core::AlertKind::kSensor) + 1 == kAlertKindCount);
 static_assert(static_cast<std::size_t>(core::AlertPhase::kClear) + 1 == kAlertPhaseCount);
-static_assert(static_cast<std::size_t>(core::Detector::kTemplate) + 1 == kDetectorCount);
+static_assert(static_cast<std::size_t>(core::Detector::kLevel) + 1 == kDetectorCount);
 
 constexpr double kSecondsPerHour = 3600.0;
 

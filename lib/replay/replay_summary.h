@@ -42,7 +42,7 @@ namespace nightjar::replay {
 
 inline constexpr std::size_t kAlertKindCount = 3;   // values of core::AlertKind
 inline constexpr std::size_t kAlertPhaseCount = 2;  // values of core::AlertPhase
-inline constexpr std::size_t kDetectorCount = 8;    // values of core::Detector
+inline constexpr std::size_t kDetectorCount = 9;    // values of core::Detector
 
 // Operator-load guidance, see the top of this file.
 inline constexpr double kAcceptableAlarmsPerHour = 6.0;

@@ -29,6 +29,7 @@ class Recorder final : public core::ResidualTap {
     channel.times.push_back(point.time);
     channel.residuals.push_back(point.residual);
     channel.flags.push_back(flags);
+    channel.level_ratios.push_back(point.level_ratio);
   }
 
   void OnRelearn(std::uint32_t channel) override {

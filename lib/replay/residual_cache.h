@@ -10,7 +10,7 @@
 // recomputed for any setting. A channel that is already armed once on_engine_ready has run
 // (its checkpoint was loaded) is marked armed_at_start. See threshold_sweep.h for how it
 // is re-evaluated.
-// Memory: 17 bytes per charted sample (a day of five 1 Hz channels: about 7 MB).
+// Memory: 25 bytes per charted sample (a day of five 1 Hz channels: about 11 MB).
 // Thread-safety: building is reentrant; a built cache is read-only and may be shared by
 // sweep threads. Ownership: plain values.
 #pragma once
@@ -40,6 +40,9 @@ struct ChannelResidualCache {
   std::vector<core::TimestampUs> times;
   std::vector<double> residuals;
   std::vector<std::uint8_t> flags;
+  // The level chart's ratio per sample (ResidualTapPoint::level_ratio): the alarm follows
+  // the larger of it and the residual charts' ratio.
+  std::vector<double> level_ratios;
   double armed_period_s = 0.0;  // 0 if the channel never armed
   // Armed before its first sample: loaded from a checkpoint (ReplayOptions::on_engine_ready,
   // e.g. `tune --state-in`); armed_period_s is then the loaded sample period.

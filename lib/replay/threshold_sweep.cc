@@ -161,7 +161,8 @@ inline Gate Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
   const core::ResidualReading reading = monitor.Observe(residual, gate.open);
   if (monitor.armed()) {
     if ((flags & kCachedAlarmHeld) == 0) {
-      const core::AlarmEdge edge = lane.alarm.Update(time, reading.ratio);
+      const double ratio = std::max(reading.ratio, channel.level_ratios[i]);
+      const core::AlarmEdge edge = lane.alarm.Update(time, ratio);
       if (edge == core::AlarmEdge::kRaise) {
         lane.raises.push_back(time);
       } else if (edge == core::AlarmEdge::kClear) {
@@ -449,6 +450,7 @@ inline void ChartStep(ChartLane& lane, const ChannelResidualCache& channel,
   const double* cusum_input = shared.cusum_input.data();
   const double* ewma_input = shared.ewma_input[lane.lambda].data();
   const std::uint8_t* gate = shared.gate.data();
+  const double* level_ratios = channel.level_ratios.data();
   if (!lane.departed) {
     const bool own_open =
         Trusts(lane.alarm, lane.held_out, flags[i]) && (gate[i] & kWithinSigmas) != 0;
@@ -461,9 +463,10 @@ inline void ChartStep(ChartLane& lane, const ChannelResidualCache& channel,
   // Inactive with nothing pending, a ratio below 1 (or NaN) changes nothing in the
   // alarm but the time it has seen last (the cache's times increase): skip it. In the
   // hold after a resume the pipeline does not update the alarm at all.
+  const double level_ratio = level_ratios[i];
   if ((flags[i] & kCachedAlarmHeld) == 0 &&
-      (!lane.quiet || !lane.charts.SurelyBelowOne(abs_z[i]))) {
-    const double ratio = lane.charts.ratio(abs_z[i]);
+      (!lane.quiet || level_ratio >= 1.0 || !lane.charts.SurelyBelowOne(abs_z[i]))) {
+    const double ratio = std::max(lane.charts.ratio(abs_z[i]), level_ratio);
     if (!lane.quiet || ratio >= 1.0) {
       const core::AlarmEdge edge = lane.alarm.Update(times[i], ratio);
       if (edge == core::AlarmEdge::kRaise) {

@@ -43,18 +43,19 @@ std::size_t RowsIn(std::string_view section) {
 TEST(KeyTableTest, HasOneRowPerChannelOptionsField) {
   // If one of these counts changes, a field was added or removed: add or remove its row in
   // lib/config/key_table.cc (and its line in config/nightjar.yaml), then update the count.
-  EXPECT_EQ(CountFields<core::ChannelOptions>(), 19u);
-  EXPECT_EQ(RowsIn(""), 19u - 8u);  // 8 members are sections (two alarm timings)
+  EXPECT_EQ(CountFields<core::ChannelOptions>(), 20u);
+  EXPECT_EQ(RowsIn(""), 20u - 9u);  // 9 members are sections (two alarm timings)
   EXPECT_EQ(CountFields<core::InputScalerOptions>(), RowsIn("scaler"));
   // input_size and seed are set by the engine, not the config.
   EXPECT_EQ(CountFields<core::LstmPredictorOptions>(), RowsIn("predictor") + 2);
   EXPECT_EQ(CountFields<core::ResidualMonitorOptions>(), RowsIn("residual"));
   EXPECT_EQ(CountFields<core::ThresholdOptions>(), RowsIn("thresholds"));
   EXPECT_EQ(CountFields<core::ResumeOptions>(), RowsIn("resume"));
+  EXPECT_EQ(CountFields<core::LevelOptions>(), RowsIn("level"));
   EXPECT_EQ(CountFields<core::SensorHealthOptions>(), RowsIn("sensor"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("anomaly_alarm"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("sensor_alarm"));
-  EXPECT_EQ(ChannelKeys().size(), 52u);
+  EXPECT_EQ(ChannelKeys().size(), 55u);
   // One `events:` entry.
   EXPECT_EQ(CountFields<core::EventTemplate>(), EventTemplateKeys().size());
 }
@@ -86,6 +87,7 @@ TEST(KeyTableTest, EveryRowReachesItsOwnFieldInsideItsSection) {
       {"predictor", {&o.predictor, sizeof o.predictor}},
       {"residual", {&o.residual, sizeof o.residual}},
       {"thresholds", {&o.thresholds, sizeof o.thresholds}},
+      {"level", {&o.level, sizeof o.level}},
       {"resume", {&o.resume, sizeof o.resume}},
       {"sensor", {&o.sensor, sizeof o.sensor}},
       {"anomaly_alarm", {&o.anomaly_alarm, sizeof o.anomaly_alarm}},

@@ -20,6 +20,10 @@ namespace {
 constexpr TimestampUs kStart = 1'780'000'000LL * kMicrosPerSecond;
 constexpr int kFaultStart = 4000;
 constexpr int kFaultEnd = 4600;
+// Long enough after the fault for every alarm to clear: the level chart holds an alarm for
+// the whole fault, and a forecaster that re-synced to the fault level sees its end as a
+// new step, which it follows in closed loop for up to 300 samples.
+constexpr int kAfterFault = 900;
 
 EngineOptions PumpOptions(const std::string& asset) {
   EngineOptions options;
@@ -42,7 +46,7 @@ PumpRun FeedPump(Engine& engine) {
   PumpRun run;
   const ChannelId flow = *engine.AddChannel("skid1.pump.flow");
   const ChannelId pressure = *engine.AddChannel("skid1.pump.pressure");
-  for (int i = 0; i < kFaultEnd + 300; ++i) {
+  for (int i = 0; i < kFaultEnd + kAfterFault; ++i) {
     const TimestampUs t = kStart + static_cast<TimestampUs>(i) * kMicrosPerSecond;
     const bool fault = i >= kFaultStart && i < kFaultEnd;
     const double wave = std::sin(2.0 * std::numbers::pi * i / 300.0);
