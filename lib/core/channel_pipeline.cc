@@ -19,9 +19,8 @@ constexpr double kPresent = 2.0;  // ratio fed to a sensor alarm whose condition
 constexpr double kAbsent = 0.0;
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
-// Residuals this far out are not learnt from even before arming: a warm-up glitch must
-// not teach the model that glitches are normal (common practice: robust learning gate).
-constexpr double kLearnGateSigmas = 6.0;
+// kLearnGateSigmas (core/residual_monitor.h) applies even before arming: a warm-up glitch
+// must not teach the model that glitches are normal.
 // Armed channels do not feed residuals beyond this to the model (in-control N(0,1)
 // residuals exceed it once in 16 000 samples; common practice for robust filtering).
 constexpr double kSuspectSigmas = 4.0;

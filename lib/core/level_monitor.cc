@@ -6,11 +6,6 @@
 
 namespace nightjar::core {
 
-namespace {
-// The residual charts' learning gate (channel_pipeline.cc kLearnGateSigmas).
-constexpr double kLearnGateSigmas = 6.0;
-}  // namespace
-
 LevelMonitor::LevelMonitor(const LevelOptions& options, const ResidualMonitorOptions& residual)
     : options_(options), charts_(residual) {
   // A level that wanders in normal operation is strongly correlated (ResidualMonitor).

@@ -22,6 +22,11 @@
 
 namespace nightjar::core {
 
+// Residuals (or departures) this far out, in sigmas of their settled scale, are not
+// learnt from: a glitch must not teach a chart that glitches are normal (common practice:
+// robust learning gate). Shared by the pipeline, the level chart and tune's sweep.
+inline constexpr double kLearnGateSigmas = 6.0;
+
 struct ResidualMonitorOptions {
   // Per-sample weight of the residual scale estimate (about 1/alpha samples of memory).
   double scale_alpha = 1.0 / 512.0;

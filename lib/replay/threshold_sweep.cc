@@ -19,9 +19,10 @@ namespace nightjar::replay {
 
 namespace {
 
-// ChannelPipeline's learning gate and closed-loop bookkeeping (channel_pipeline.cc). The
-// base-reproduction test fails if these drift apart from the pipeline's.
-constexpr double kLearnGateSigmas = 6.0;
+// ChannelPipeline's learning gate (core::kLearnGateSigmas) and closed-loop bookkeeping
+// (channel_pipeline.cc). The base-reproduction test fails if these drift apart from the
+// pipeline's.
+using core::kLearnGateSigmas;
 constexpr double kSuspectSigmas = 4.0;
 constexpr int kMaxClosedLoopSteps = 300;
 
