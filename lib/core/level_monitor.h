@@ -7,11 +7,16 @@
 // control: it does not follow a fault, and it follows a slow move of the operating point
 // at its own pace (about 1/baseline_alpha samples). The departure goes through the same
 // machinery as the residuals (core/residual_monitor.h: robust scale, serial-correlation
-// correction, CUSUM and EWMA charts), with no spike limit: a lone far-off value is the
-// residual charts' business. A signal whose level wanders in normal operation has a wide,
-// strongly correlated departure, and the correction makes the chart insensitive there
-// rather than noisy (until the correction is measured, the largest factor stands in); a
-// signal that holds a level shows a shift of a few sigma at once.
+// correction, CUSUM and EWMA charts), with no spike limit.
+//
+// A lone far-off value is the residual charts' business, so the departure is winsorised
+// at the learning gate (kLearnGateSigmas) and learnt, not gated out: a load that pulses
+// far off its level in normal operation widens the chart rather than raising it at every
+// pulse. A signal whose level wanders in normal operation has a wide, strongly correlated
+// departure, and the correction makes the chart insensitive there rather than noisy
+// (until the correction is measured, the largest factor stands in); a signal that holds
+// a level shows a shift of a few sigma at once.
+//
 // Independent of the residual charts and of the alarm, so threshold tuning can record its
 // ratio once (core/residual_tap.h).
 // Thread-safety: none; owned by one channel.
@@ -53,7 +58,8 @@ class LevelMonitor {
   // Charts `value`; `unit` is the input scale (engineering units per scaled unit), so the
   // departure is in the same scaled units as the residual. The baseline, the departure's
   // scale and its serial correlation learn only when `trusted` (not flat, not in a resume
-  // hold), the chart is in control and the departure is within 6 of its sigmas. The
+  // hold) and the chart is in control, from the departure winsorised at kLearnGateSigmas
+  // of its sigma (the same value is charted). The
   // reading's detector is kLevel and its z the departure in sigmas; ratio 0 until armed.
   ResidualReading Observe(double value, double unit, bool trusted);
 
