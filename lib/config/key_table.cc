@@ -31,7 +31,8 @@ constexpr Bounds None() { return {}; }
 // Bounds mirror core's validation (core/engine_options.cc and the Validate functions it
 // calls); tests/config/key_table_test.cc checks each bound against it. Cross-field rules
 // (warmup_samples >= scaler.warmup_samples, final_learning_rate <= learning_rate,
-// hidden_size * window <= 8192, min_value <= max_value, flatline_samples != 1) are left to
+// hidden_size * window <= 8192, min_value <= max_value, flatline_samples != 1,
+// *_alarm.chatter_raises != 1) are left to
 // core::ValidateChannelOptions, which the loader runs on every resolved block.
 const std::array kKeys = {
     KeySpec{"unit", NIGHTJAR_FIELD(unit), None(), "",
@@ -146,6 +147,14 @@ const std::array kKeys = {
             "of threshold", "clear when statistic/threshold < 1 - deadband"},
     KeySpec{"anomaly_alarm.max_shelve_s", NIGHTJAR_FIELD(anomaly_alarm.max_shelve_s),
             OpenClosed(0, 2592000), "s", "longest shelving one request may ask for"},
+    KeySpec{"anomaly_alarm.chatter_raises", NIGHTJAR_FIELD(anomaly_alarm.chatter_raises),
+            Closed(0, 16), "raises",
+            "this many raises within chatter_window_s make the alarm chattering: "
+            "its clear then waits chatter_window_s; 0 = off, else >= 2"},
+    KeySpec{"anomaly_alarm.chatter_window_s", NIGHTJAR_FIELD(anomaly_alarm.chatter_window_s),
+            OpenClosed(0, 86400), "s",
+            "window of the chattering count, and the quiet time a "
+            "chattering alarm needs to clear"},
 
     KeySpec{"sensor_alarm.on_delay_s", NIGHTJAR_FIELD(sensor_alarm.on_delay_s), Closed(0, 86400),
             "s", "sensor fault must persist this long before the alarm raises"},
@@ -155,6 +164,14 @@ const std::array kKeys = {
             "of threshold", "clear when statistic/threshold < 1 - deadband"},
     KeySpec{"sensor_alarm.max_shelve_s", NIGHTJAR_FIELD(sensor_alarm.max_shelve_s),
             OpenClosed(0, 2592000), "s", "longest shelving one request may ask for"},
+    KeySpec{"sensor_alarm.chatter_raises", NIGHTJAR_FIELD(sensor_alarm.chatter_raises),
+            Closed(0, 16), "raises",
+            "this many raises within chatter_window_s make the alarm chattering: "
+            "its clear then waits chatter_window_s; 0 = off, else >= 2"},
+    KeySpec{"sensor_alarm.chatter_window_s", NIGHTJAR_FIELD(sensor_alarm.chatter_window_s),
+            OpenClosed(0, 86400), "s",
+            "window of the chattering count, and the quiet time a "
+            "chattering alarm needs to clear"},
 
     KeySpec{"events", NIGHTJAR_FIELD(events), None(), "",
             "expected events recognised by their shape; a block that sets it replaces the list"},

@@ -35,6 +35,16 @@ Status ValidateAlarmTiming(const AlarmTiming& timing) {
     return Status::InvalidArgument("max_shelve_s: must be in (0, 2592000] s, got " +
                                    std::to_string(timing.max_shelve_s));
   }
+  if (timing.chatter_raises != 0 &&
+      !(timing.chatter_raises >= 2 && timing.chatter_raises <= kMaxChatterRaises)) {
+    return Status::InvalidArgument("chatter_raises: must be 0 (off) or in [2, " +
+                                   std::to_string(kMaxChatterRaises) + "], got " +
+                                   std::to_string(timing.chatter_raises));
+  }
+  if (!(timing.chatter_window_s > 0.0 && timing.chatter_window_s <= kMaxDelayS)) {
+    return Status::InvalidArgument("chatter_window_s: must be in (0, 86400] s, got " +
+                                   std::to_string(timing.chatter_window_s));
+  }
   return Status::Ok();
 }
 
@@ -82,6 +92,11 @@ Alarm::Alarm(const AlarmTiming& timing) : timing_(timing) {
   timing_.deadband = clamp(timing.deadband, 0.0, 0.99, defaults.deadband);
   timing_.max_shelve_s = clamp(timing.max_shelve_s, 1.0, kMaxShelveLimitS, defaults.max_shelve_s);
 
+  timing_.chatter_raises =
+      timing.chatter_raises == 0 ? 0 : std::clamp(timing.chatter_raises, 2, kMaxChatterRaises);
+  timing_.chatter_window_s =
+      clamp(timing.chatter_window_s, 1.0, kMaxDelayS, defaults.chatter_window_s);
+  chatter_window_us_ = FromSeconds(timing_.chatter_window_s);
   on_delay_us_ = FromSeconds(timing_.on_delay_s);
   off_delay_us_ = FromSeconds(timing_.off_delay_s);
   max_shelve_us_ = FromSeconds(timing_.max_shelve_s);
@@ -138,6 +153,7 @@ AlarmEdge Alarm::TrackCondition(TimestampUs now, double ratio) {
     active_ = true;
     raised_at_ = now;
     clear_since_.reset();
+    NoteRaise(now);
     return AlarmEdge::kRaise;
   }
 
@@ -147,11 +163,22 @@ AlarmEdge Alarm::TrackCondition(TimestampUs now, double ratio) {
     return AlarmEdge::kNone;
   }
   if (!clear_since_) clear_since_ = now;
-  if (now - *clear_since_ < off_delay_us_) return AlarmEdge::kNone;
+  const TimestampUs off_delay =
+      chattering_ ? std::max(off_delay_us_, chatter_window_us_) : off_delay_us_;
+  if (now - *clear_since_ < off_delay) return AlarmEdge::kNone;
   active_ = false;
   condition_since_.reset();
   clear_since_.reset();
   return AlarmEdge::kClear;
+}
+
+void Alarm::NoteRaise(TimestampUs now) {
+  const int n = timing_.chatter_raises;
+  if (n == 0) return;
+  for (int i = std::min(raise_count_, n - 1); i > 0; --i) recent_raises_[i] = recent_raises_[i - 1];
+  recent_raises_[0] = now;
+  raise_count_ = std::min(raise_count_ + 1, n);
+  chattering_ = raise_count_ == n && now - recent_raises_[n - 1] <= chatter_window_us_;
 }
 
 AlarmEdge Alarm::Withdraw(TimestampUs now) {
@@ -161,6 +188,8 @@ AlarmEdge Alarm::Withdraw(TimestampUs now) {
   condition_since_.reset();
   clear_since_.reset();
   annunciated_ = AlarmState::kNormal;
+  raise_count_ = 0;  // the old condition's raises say nothing about the new one
+  chattering_ = false;
   return annunciated ? AlarmEdge::kClear : AlarmEdge::kNone;
 }
 

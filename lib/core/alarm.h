@@ -6,6 +6,10 @@
 //    (hysteresis, against chattering). On-delay: ratio >= 1 must hold on every update for
 //    on_delay_s before the raise. Off-delay: ratio < 1 - deadband must hold on every
 //    update for off_delay_s before the clear. active() is this latched condition.
+//    Chattering (ISA-18.2: an alarm that returns repeatedly in a short time): once the
+//    condition has raised chatter_raises times within chatter_window_s, the next clear
+//    waits chatter_window_s instead of off_delay_s, so a repeating alarm stands as one
+//    alarm instead of flooding the operator; it clears after a quiet window.
 //  * Annunciation, the ISA-18.2 alarm states (ANSI/ISA-18.2-2016 state diagram):
 //      Normal --raise--> Unacknowledged --ack--> Acknowledged --clear--> Normal
 //      Unacknowledged --clear--> ReturnedUnacknowledged --ack--> Normal
@@ -26,6 +30,7 @@
 // Ownership: a plain value type, copyable.
 #pragma once
 
+#include <array>
 #include <cstdint>
 #include <optional>
 
@@ -48,7 +53,14 @@ struct AlarmTiming {
   // shelved alarms are a known hazard, so shelving always ends on its own.
   // Range (0, 30 days].
   double max_shelve_s = 8 * 3600.0;
+  // Raises within chatter_window_s that make the alarm chattering; 0 = off, else
+  // [2, kMaxChatterRaises]. Default 3 in an hour (common practice: three returns in a
+  // short period is the usual chattering count; the hour suits minutes-long episodes).
+  int chatter_raises = 3;
+  // Range (0, 86400] s.
+  double chatter_window_s = 3600.0;
 };
+inline constexpr int kMaxChatterRaises = 16;
 
 // OK when every field of `timing` is inside its documented range; otherwise
 // InvalidArgument naming the field.
@@ -146,6 +158,9 @@ class Alarm {
   // on-delay that led to the raise and runs until the clear; kept after the clear until a
   // new condition starts. 0 before any condition.
   double peak_ratio() const { return peak_ratio_; }
+  // The latest raise made the alarm chattering (see the header comment): its clear waits
+  // chatter_window_s.
+  bool chattering() const { return chattering_; }
   // When shelving ends; nullopt when not shelved.
   std::optional<TimestampUs> shelved_until() const { return shelved_until_; }
   // Time of the latest accepted Acknowledge; nullopt before the first.
@@ -157,6 +172,8 @@ class Alarm {
   friend class ChannelStateAccess;  // checkpoints (channel_state.cc)
   // Moves the latched condition; returns which edge of it happened (ignores silencing).
   AlarmEdge TrackCondition(TimestampUs now, double ratio);
+  // Records a raise of the condition and whether it makes the alarm chattering.
+  void NoteRaise(TimestampUs now);
   // Ends shelving if it is due at `now`; returns the edge of the resulting return.
   AlarmEdge ExpireShelving(TimestampUs now);
   // Called when the last silencing reason has ended: re-derives the annunciated state.
@@ -169,6 +186,7 @@ class Alarm {
   TimestampUs off_delay_us_ = 0;
   TimestampUs max_shelve_us_ = 0;
   double clear_below_ = 0.9;  // 1 - deadband
+  TimestampUs chatter_window_us_ = 0;
 
   // Annunciated state when not silenced: one of the first four AlarmState values.
   AlarmState annunciated_ = AlarmState::kNormal;
@@ -178,6 +196,10 @@ class Alarm {
   std::optional<TimestampUs> raised_at_;
   std::optional<TimestampUs> acknowledged_at_;
   double peak_ratio_ = 0;
+  // The latest raises, newest first (the first raise_count_ are set).
+  std::array<TimestampUs, kMaxChatterRaises> recent_raises_{};
+  int raise_count_ = 0;
+  bool chattering_ = false;
 
   std::optional<TimestampUs> shelved_until_;
   bool suppressed_by_design_ = false;

@@ -372,6 +372,9 @@ class ChannelStateAccess {
     a(alarm.suppressed_by_design_);
     a(alarm.out_of_service_);
     a(alarm.latest_now_);
+    for (auto& raise : alarm.recent_raises_) a(raise);  // version 5
+    a(alarm.raise_count_);
+    a(alarm.chattering_);
   }
 
   template <typename A, typename T>

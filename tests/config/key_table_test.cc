@@ -55,7 +55,7 @@ TEST(KeyTableTest, HasOneRowPerChannelOptionsField) {
   EXPECT_EQ(CountFields<core::SensorHealthOptions>(), RowsIn("sensor"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("anomaly_alarm"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("sensor_alarm"));
-  EXPECT_EQ(ChannelKeys().size(), 55u);
+  EXPECT_EQ(ChannelKeys().size(), 59u);
   // One `events:` entry.
   EXPECT_EQ(CountFields<core::EventTemplate>(), EventTemplateKeys().size());
 }
@@ -226,10 +226,12 @@ TEST(KeyTableTest, BoundsAgreeWithCoreValidation) {
       {"residual.cusum_cap", inf},     {"thresholds.cusum_h", inf},   {"thresholds.ewma_l", inf},
       {"thresholds.spike_limit", inf},
   };
-  // A hole inside an interval (flatline_samples is 0 or >= 2) is core's to reject: the
-  // loader runs core on every block and points the error at the key's line.
+  // A hole inside an interval (flatline_samples and chatter_raises are 0 or >= 2) is core's to
+  // reject: the loader runs core on every block and points the error at the key's line.
   const std::set<std::pair<std::string, double>> core_stricter = {
       {"sensor.flatline_samples", 1},
+      {"anomaly_alarm.chatter_raises", 1},
+      {"sensor_alarm.chatter_raises", 1},
   };
   std::set<std::pair<std::string, double>> stricter_seen;
   for (const KeySpec& key : ChannelKeys()) {

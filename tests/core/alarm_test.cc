@@ -32,6 +32,7 @@ AlarmTiming Timing(double on_delay_s, double off_delay_s, double deadband) {
   timing.on_delay_s = on_delay_s;
   timing.off_delay_s = off_delay_s;
   timing.deadband = deadband;
+  timing.chatter_raises = 0;  // the chattering treatment has tests of its own below
   return timing;
 }
 
@@ -439,6 +440,79 @@ TEST(AlarmTest, UpdateNeverAllocates) {
     (void)alarm.Tick(At(s));
   }
   EXPECT_EQ(counter.count(), 0U);  // common practice: STYLE.md, no heap on the sample path
+}
+
+}  // namespace
+}  // namespace nightjar::core
+
+namespace nightjar::core {
+namespace {
+
+TEST(AlarmTest, AChatteringAlarmStandsAsOneUntilAQuietWindow) {
+  // A condition that comes back every 10 minutes for 2 minutes: with a 30 s off-delay
+  // each return is a new raise, the chattering alarm that floods an operator (ISA-18.2
+  // TR18.2.5 / EEMUA 191 name it a bad actor). With the chattering treatment the third
+  // raise within the hour (common practice: three returns) holds the clear for the window.
+  AlarmTiming timing = Timing(0, 30, 0.0);
+  timing.chatter_raises = 3;
+  timing.chatter_window_s = 3600;
+  Alarm treated(timing);
+  Alarm untreated(Timing(0, 30, 0.0));
+  int treated_raises = 0;
+  int untreated_raises = 0;
+  const int cycles_s = 6 * 3600;
+  for (int s = 0; s < cycles_s; ++s) {
+    const double ratio = s % 600 < 120 ? 2.0 : 0.0;
+    treated_raises += treated.Update(At(s), ratio) == AlarmEdge::kRaise ? 1 : 0;
+    untreated_raises += untreated.Update(At(s), ratio) == AlarmEdge::kRaise ? 1 : 0;
+  }
+  EXPECT_EQ(untreated_raises, 36) << "premise: one raise per return";
+  EXPECT_EQ(treated_raises, 3) << "the third raise makes it chattering; it then stands";
+  EXPECT_TRUE(treated.chattering());
+  EXPECT_TRUE(treated.active());
+
+  // Quiet: it clears one window after the condition last left, not 30 s after.
+  const int last_return_end = cycles_s - 600 + 120;
+  int cleared_at = -1;
+  for (int s = cycles_s; s < cycles_s + 2 * 3600 && cleared_at < 0; ++s) {
+    if (treated.Update(At(s), 0.0) == AlarmEdge::kClear) cleared_at = s;
+  }
+  EXPECT_EQ(cleared_at, last_return_end + 3600);
+
+  // A single raise afterwards is not chattering: it clears after the plain off-delay
+  // (the raises that made it chattering are out of the window by then).
+  const int t0 = cleared_at + 3600;
+  EXPECT_EQ(treated.Update(At(t0), 2.0), AlarmEdge::kRaise);
+  EXPECT_FALSE(treated.chattering());
+  int clear = -1;
+  for (int s = t0 + 1; s < t0 + 200 && clear < 0; ++s) {
+    if (treated.Update(At(s), 0.0) == AlarmEdge::kClear) clear = s;
+  }
+  EXPECT_EQ(clear, t0 + 1 + 30);
+}
+
+TEST(AlarmTest, ChatteringRulesAreValidatedAndAWithdrawalForgetsTheHistory) {
+  AlarmTiming timing;
+  timing.chatter_raises = 1;  // one raise cannot repeat
+  EXPECT_EQ(ValidateAlarmTiming(timing).code(), StatusCode::kInvalidArgument);
+  timing.chatter_raises = kMaxChatterRaises + 1;
+  EXPECT_EQ(ValidateAlarmTiming(timing).code(), StatusCode::kInvalidArgument);
+  timing.chatter_raises = 0;
+  EXPECT_TRUE(ValidateAlarmTiming(timing).ok());
+  timing.chatter_raises = 2;
+  timing.chatter_window_s = 0;
+  EXPECT_EQ(ValidateAlarmTiming(timing).code(), StatusCode::kInvalidArgument);
+
+  timing = Timing(0, 0, 0.0);
+  timing.chatter_raises = 2;
+  timing.chatter_window_s = 600;
+  Alarm alarm(timing);
+  EXPECT_EQ(alarm.Update(At(0), 2.0), AlarmEdge::kRaise);
+  EXPECT_EQ(alarm.Update(At(1), 0.0), AlarmEdge::kClear);
+  (void)alarm.Withdraw(At(2));  // a re-learn: the old condition's raises say nothing now
+  EXPECT_EQ(alarm.Update(At(3), 2.0), AlarmEdge::kRaise);
+  EXPECT_FALSE(alarm.chattering());
+  EXPECT_EQ(alarm.Update(At(4), 0.0), AlarmEdge::kClear);
 }
 
 }  // namespace

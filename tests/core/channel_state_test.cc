@@ -109,8 +109,12 @@ TEST(ChannelStateTest, RestoredChannelContinuesBitForBit) {
   constexpr int kRestoreAt = 1500;
   constexpr int kTotal = 3000;
   std::vector<double> values = Signal(kTotal);
+  // The steps are 1000 s apart: a chattering window shorter than that lets the second
+  // step's alarm clear, while the raise history still travels in the checkpoint.
+  EngineOptions options = SmallModel();
+  options.defaults.anomaly_alarm.chatter_window_s = 600.0;
 
-  Engine uninterrupted(SmallModel());
+  Engine uninterrupted(options);
   const ChannelId a = *uninterrupted.AddChannel(kName);
   std::vector<Alert> before;
   Feed(uninterrupted, a, 0, kRestoreAt, values, before);
@@ -121,7 +125,7 @@ TEST(ChannelStateTest, RestoredChannelContinuesBitForBit) {
   std::vector<std::uint8_t> bytes;
   uninterrupted.SaveChannel(a, bytes);
 
-  Engine restored(SmallModel());
+  Engine restored(options);
   StateProblem problem = StateProblem::kCorrupt;
   ASSERT_TRUE(restored.LoadChannel(kName, bytes, &problem).ok());
   EXPECT_EQ(problem, StateProblem::kNone);
@@ -279,6 +283,7 @@ TEST(ChannelStateTest, ConcludeKnownGoodCoversTheChartedRecord) {
   // A loose budget and no on-delay, so that the design alone gives raises to count.
   options.defaults.thresholds.false_alarms_per_day = 20.0;
   options.defaults.anomaly_alarm.on_delay_s = 0.0;
+  options.defaults.anomaly_alarm.chatter_raises = 0;  // count every raise of the charts
   std::mt19937_64 rng(11);
   std::student_t_distribution<double> tails(3.0);
   std::normal_distribution<double> drift(0.0, 0.03);

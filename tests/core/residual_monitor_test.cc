@@ -34,7 +34,8 @@ RateResult CountFalseAlarms(double phi, bool correct, std::uint64_t seed) {
   ThresholdOptions budget;
   budget.false_alarms_per_day = kBudgetPerDay;
   ThresholdDesigner designer;
-  Alarm alarm(AlarmTiming{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2});
+  Alarm alarm(
+      AlarmTiming{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2, .chatter_raises = 0});
 
   std::mt19937_64 rng(seed);
   std::normal_distribution<double> innovation(0.0, std::sqrt(1.0 - phi * phi));
@@ -141,7 +142,8 @@ class WanderingResiduals {
 // Raises counted on `samples` residuals through the engine's default anomaly timing.
 int CountRaises(ResidualMonitor& monitor, WanderingResiduals& source, int samples,
                 double shift = 0.0) {
-  Alarm alarm(AlarmTiming{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2});
+  Alarm alarm(
+      AlarmTiming{.on_delay_s = 0.0, .off_delay_s = 30.0, .deadband = 0.2, .chatter_raises = 0});
   int raises = 0;
   for (int i = 0; i < samples; ++i) {
     const ResidualReading reading = monitor.Observe(source.Next() + shift, false);

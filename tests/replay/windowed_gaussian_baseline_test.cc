@@ -61,7 +61,8 @@ std::vector<ReferenceRow> ReadReference() {
 }
 
 // The reference's alarm: no delays, deadband 0.1 (make_windowed_gaussian_reference.py).
-constexpr core::AlarmTiming kReferenceTiming{.on_delay_s = 0, .off_delay_s = 0, .deadband = 0.1};
+constexpr core::AlarmTiming kReferenceTiming{
+    .on_delay_s = 0, .off_delay_s = 0, .deadband = 0.1, .chatter_raises = 0};
 
 TEST(WindowedGaussianBaselineTest, MatchesNumpySampleBySample) {
   const std::vector<ReferenceRow> rows = ReadReference();
