@@ -43,6 +43,8 @@ const std::array kKeys = {
     KeySpec{"episode_window_s", NIGHTJAR_FIELD(episode_window_s), Closed(0, 86400), "s",
             "a raise of the asset's other channels this long after the open episode's latest "
             "annunciated raise is annunciated again"},
+    KeySpec{"asset_shares_budget", NIGHTJAR_FIELD(asset_shares_budget), None(), "",
+            "the false-alarm budgets are the asset's, shared equally among its channels"},
     KeySpec{"sample_period_s", NIGHTJAR_FIELD(sample_period_s), AtLeast(0), "s",
             "nominal sample period; 0 estimates it from arrival times"},
     KeySpec{

@@ -490,7 +490,8 @@ bool ChannelPipeline::ConcludeKnownGood(ThresholdDesigner& designer) {
 
 void ChannelPipeline::TryArm(ThresholdDesigner& designer) {
   if (arm_failed_ || !period_.known()) return;
-  Result<Thresholds> thresholds = designer.Design(options_.thresholds, period_.period_s());
+  Result<Thresholds> thresholds =
+      designer.Design(SharedThresholdOptions(options_, asset_channels_), period_.period_s());
   if (!thresholds.ok()) {
     // Options are validated when the channel is created, so this is a bug; stay
     // learning rather than raise alarms on a broken design.
@@ -500,7 +501,8 @@ void ChannelPipeline::TryArm(ThresholdDesigner& designer) {
   monitor_.Arm(*thresholds);
   if (options_.level.enabled) {
     ThresholdOptions level_budget;
-    level_budget.false_alarms_per_day = options_.level.false_alarms_per_day;
+    level_budget.false_alarms_per_day =
+        options_.level.false_alarms_per_day * BudgetShare(options_, asset_channels_);
     Result<Thresholds> level = designer.Design(level_budget, period_.period_s());
     if (level.ok()) level_.Arm(*level);
   }

@@ -7,6 +7,7 @@
 #pragma once
 
 #include <array>
+#include <cstddef>
 #include <cstdint>
 #include <optional>
 #include <string>
@@ -97,6 +98,11 @@ class ChannelPipeline {
     resume_clock_.reset();
   }
 
+  // Channels in this one's asset, itself included (1 when grouped with no other); the
+  // engine keeps it current. The charts are designed for the share of the false-alarm
+  // budgets it gives (BudgetShare) when the channel arms.
+  void set_asset_channels(std::size_t count) { asset_channels_ = count; }
+
   // The recording just fed was known to be normal (`nightjar learn`): arm now if the
   // residual scale has settled, even before warmup_samples; if the channel was armed
   // already, raise its chart limits to cover what they reached on the recording
@@ -182,6 +188,7 @@ class ChannelPipeline {
   std::vector<TemplateMatcher> matchers_;  // one per expected-event template
 
   bool has_last_used_ = false;
+  std::size_t asset_channels_ = 1;
   int closed_loop_steps_ = 0;
   bool held_out_ = false;   // closed loop ran out: fed measurements until back to normal
   double last_used_ = 0.0;  // last value the model was fed (the forecast while in alarm)

@@ -47,6 +47,7 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
                                                         ChannelSeed(options_.seed, name)));
   options_of_.push_back(options);
   asset_of_.push_back(AssetOfChannel(name, options.asset));
+  JoinAsset(id);
   ids_.emplace(std::string(name), id);
   channels_.back()->set_residual_tap(tap_, id);
   return id;
@@ -66,6 +67,23 @@ void Engine::Group(std::vector<Alert>& out, std::size_t from) {
   }
 }
 
+void Engine::JoinAsset(ChannelId id) {
+  const std::string& asset = asset_of_[id];
+  if (asset.empty()) {
+    asset_slot_.push_back(kNoAsset);
+    return;
+  }
+  auto [it, added] = asset_slots_.try_emplace(asset, asset_sizes_.size());
+  if (added) asset_sizes_.push_back(0);
+  ++asset_sizes_[it->second];
+  asset_slot_.push_back(it->second);
+}
+
+std::size_t Engine::asset_channels(ChannelId id) const {
+  const std::size_t slot = asset_slot_[id];
+  return slot == kNoAsset ? 1 : asset_sizes_[slot];
+}
+
 void Engine::RegroupRestored(ChannelId id) {
   const std::string& asset = asset_of_[id];
   const ChannelPipeline& channel = *channels_[id];
@@ -79,8 +97,9 @@ void Engine::RegroupRestored(ChannelId id) {
 
 std::size_t Engine::ConcludeKnownGood() {
   std::size_t armed = 0;
-  for (const std::unique_ptr<ChannelPipeline>& channel : channels_) {
-    if (channel->ConcludeKnownGood(designer_)) ++armed;
+  for (ChannelId id = 0; id < channels_.size(); ++id) {
+    channels_[id]->set_asset_channels(asset_channels(id));
+    if (channels_[id]->ConcludeKnownGood(designer_)) ++armed;
   }
   return armed;
 }
@@ -188,6 +207,7 @@ void Engine::Process(ChannelId channel, TimestampUs time, double value, std::vec
   if (!clock_started_ || time >= clock_ + kGapSweepInterval) AdvanceClock(time, out);
   ChannelPipeline& pipeline = *channels_[channel];
   const std::int64_t relearns = pipeline.relearn_count();
+  pipeline.set_asset_channels(asset_channels(channel));
   pipeline.Process(time, value, designer_, *workspace_, out);
   if (pipeline.relearn_count() != relearns) RelearnAssetWith(channel, time, out);
   if (out.size() != before) Group(out, before);
@@ -248,6 +268,7 @@ Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> 
   channels_.push_back(std::move(restored));
   options_of_.push_back(options);  // channel_options(id) must hold for a loaded channel too
   asset_of_.push_back(AssetOfChannel(name, options.asset));
+  JoinAsset(id);
   ids_.emplace(std::string(name), id);
   RegroupRestored(id);
   return Status::Ok();

@@ -12,6 +12,7 @@
 // Same code either way.
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <memory>
 #include <optional>
@@ -121,6 +122,9 @@ class Engine {
   const ChannelPipeline& channel(ChannelId id) const { return *channels_[id]; }
   // The channel's asset (AssetOfChannel); empty when it is grouped with no other.
   const std::string& channel_asset(ChannelId id) const { return asset_of_[id]; }
+  // Channels of `id`'s asset, itself included (1 when grouped with no other): its
+  // false-alarm budgets are shared among them (ChannelOptions::asset_shares_budget).
+  std::size_t asset_channels(ChannelId id) const;
   const AlarmEpisodes& episodes() const { return episodes_; }
   std::int64_t rejected_samples() const { return rejected_samples_; }
 
@@ -141,6 +145,8 @@ class Engine {
   // After `id`'s pipeline was replaced by a restored one: its episode membership follows
   // the restored anomaly alarm.
   void RegroupRestored(ChannelId id);
+  // Files the channel just appended to asset_of_ under its asset's channel count.
+  void JoinAsset(ChannelId id);
 
   EngineOptions options_;
   ChannelOptionsResolver resolver_;
@@ -148,6 +154,11 @@ class Engine {
   std::vector<std::unique_ptr<ChannelPipeline>> channels_;
   std::vector<ChannelOptions> options_of_;  // by ChannelId
   std::vector<std::string> asset_of_;       // by ChannelId
+  // Channel counts of the assets (by slot) and each channel's slot (kNoAsset if ungrouped).
+  static constexpr std::size_t kNoAsset = static_cast<std::size_t>(-1);
+  std::vector<std::size_t> asset_sizes_;
+  std::vector<std::size_t> asset_slot_;  // by ChannelId
+  std::unordered_map<std::string, std::size_t, NameHash, std::equal_to<>> asset_slots_;
   AlarmEpisodes episodes_;
   std::unordered_map<std::string, ChannelId, NameHash, std::equal_to<>> ids_;
   std::unique_ptr<LstmWorkspace<float>> workspace_;

@@ -95,4 +95,16 @@ Status ValidateChannelOptions(const ChannelOptions& options) {
   return ValidateTiming(options.sensor_alarm, "sensor_alarm");
 }
 
+double BudgetShare(const ChannelOptions& options, std::size_t asset_channels) {
+  if (!options.asset_shares_budget || asset_channels <= 1) return 1.0;
+  return 1.0 / static_cast<double>(asset_channels);
+}
+
+ThresholdOptions SharedThresholdOptions(const ChannelOptions& options,
+                                        std::size_t asset_channels) {
+  ThresholdOptions shared = options.thresholds;
+  shared.false_alarms_per_day *= BudgetShare(options, asset_channels);
+  return shared;
+}
+
 }  // namespace nightjar::core

@@ -4,6 +4,7 @@
 // Thread-safety: plain values.
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <functional>
 #include <string>
@@ -77,6 +78,13 @@ struct ChannelOptions {
   // the open datasets, tests/quality/RESULTS.md: 600 s, the 10-minute interval of the
   // alarm-rate guidance, lost two SKAB faults; 60-180 s lost none).
   double episode_window_s = 120.0;
+  // The false-alarm budgets (thresholds.false_alarms_per_day, level.false_alarms_per_day)
+  // are the asset's, shared equally among its channels (BudgetShare): an asset of fifty
+  // tags raises no more false alarms by design than one tag does. An operator counts the
+  // alarms of a unit, not of its tags (ISA-18.2 alarm rates are per operator); per-tag
+  // budgets gave the 52-channel Tennessee Eastman plant 12 false alarms a day
+  // (tests/quality/RESULTS.md). false: each channel has the whole budget. Default true.
+  bool asset_shares_budget = true;
   // Nominal sample period in seconds; 0 estimates it from arrival times. Default 0.
   double sample_period_s = 0.0;
   // Samples seen before anomaly alarms arm (state "learning"), counting the scaler's own
@@ -119,6 +127,14 @@ struct ChannelOptions {
 
 // Checks every field; the message names the key path, e.g. "predictor.hidden_size".
 Status ValidateChannelOptions(const ChannelOptions& options);
+
+// The share of its false-alarm budgets a channel designs its charts for when its asset
+// has `asset_channels` channels (itself included; 1 when it is grouped with no other):
+// 1 / asset_channels when options.asset_shares_budget, else 1. The share is taken when
+// the channel arms, over the channels its engine knows then.
+double BudgetShare(const ChannelOptions& options, std::size_t asset_channels);
+// options.thresholds with its false_alarms_per_day scaled by BudgetShare.
+ThresholdOptions SharedThresholdOptions(const ChannelOptions& options, std::size_t asset_channels);
 
 struct EngineOptions {
   // Options for channels that the resolver (if any) does not override.

@@ -1,8 +1,12 @@
 #include "replay/residual_cache.h"
 
+#include <functional>
+#include <map>
+#include <string>
 #include <utility>
 #include <vector>
 
+#include "core/alarm_episodes.h"
 #include "core/residual_tap.h"
 
 namespace nightjar::replay {
@@ -92,6 +96,17 @@ core::Result<ResidualCache> BuildResidualCache(const std::string& path,
     for (const auto& [name, time] : anomaly_raises) {
       if (name == channel.name) channel.base_anomaly_raises.push_back(time);
     }
+  }
+  // The recording's channels are all known when any arms, so each designed its charts for
+  // its share over the recording's channels of its asset (core::BudgetShare).
+  std::map<std::string, std::size_t, std::less<>> asset_sizes;
+  std::vector<std::string> asset_of(cache.channels.size());
+  for (std::size_t i = 0; i < cache.channels.size(); ++i) {
+    asset_of[i] = core::AssetOfChannel(cache.channels[i].name, cache.channels[i].options.asset);
+    if (!asset_of[i].empty()) ++asset_sizes[asset_of[i]];
+  }
+  for (std::size_t i = 0; i < cache.channels.size(); ++i) {
+    if (!asset_of[i].empty()) cache.channels[i].asset_channels = asset_sizes[asset_of[i]];
   }
   cache.duration_s = outcome.summary.duration_s();
   cache.summary = std::move(outcome.summary);

@@ -15,6 +15,7 @@
 // sweep threads. Ownership: plain values.
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <string>
 #include <vector>
@@ -44,6 +45,8 @@ struct ChannelResidualCache {
   // the larger of it and the residual charts' ratio.
   std::vector<double> level_ratios;
   double armed_period_s = 0.0;  // 0 if the channel never armed
+  // Channels of its asset in the recording, itself included (core::Engine::asset_channels).
+  std::size_t asset_channels = 1;
   // Armed before its first sample: loaded from a checkpoint (ReplayOptions::on_engine_ready,
   // e.g. `tune --state-in`); armed_period_s is then the loaded sample period.
   bool armed_at_start = false;

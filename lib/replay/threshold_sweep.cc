@@ -175,7 +175,8 @@ inline Gate Step(Lane& lane, const ChannelResidualCache& channel, std::size_t i,
     if ((flags & kCachedTailWindow) != 0) monitor.StartTailWindow();
     if ((flags & kCachedArmed) != 0) {
       core::Result<core::Thresholds> thresholds =
-          designer.Design(lane.options.thresholds, channel.armed_period_s);
+          designer.Design(core::SharedThresholdOptions(lane.options, channel.asset_channels),
+                          channel.armed_period_s);
       if (thresholds.ok()) {
         monitor.Arm(*thresholds);
       } else if (lane.status.ok()) {
@@ -210,7 +211,8 @@ void PreLearnAndArm(Lane& lane, const ChannelResidualCache& channel,
                     core::ThresholdDesigner& designer) {
   PreLearn(lane.monitor, channel);
   core::Result<core::Thresholds> thresholds =
-      designer.Design(lane.options.thresholds, channel.armed_period_s);
+      designer.Design(core::SharedThresholdOptions(lane.options, channel.asset_channels),
+                          channel.armed_period_s);
   if (!thresholds.ok()) {
     lane.status = thresholds.status();
     return;
@@ -509,7 +511,8 @@ std::vector<core::Result<SettingRaises>> RunCharts(
     ChartLane lane(*valid[s]);
     if (shared.armed) {
       core::Result<core::Thresholds> thresholds =
-          designer.Design(valid[s]->thresholds, channel.armed_period_s);
+          designer.Design(core::SharedThresholdOptions(*valid[s], channel.asset_channels),
+                          channel.armed_period_s);
       if (!thresholds.ok()) {
         failed[s] = thresholds.status();
         continue;
