@@ -663,6 +663,7 @@ ChannelStatus ChannelPipeline::status() const {
   ChannelStatus status = counters_;
   status.relearning = relearning_;
   status.sample_period_s = period_.known() ? period_.period_s() : 0.0;
+  status.design_arl0 = monitor_.armed() ? monitor_.thresholds().arl0_per_chart : 0.0;
   if (alarm(AlarmCondition::kGap).active()) {
     status.state = ChannelState::kStale;
   } else if (!monitor_.armed()) {

@@ -72,6 +72,9 @@ struct ChannelStatus {
   // (ResumeOptions); a count an operator should know about.
   std::int64_t relearns = 0;
   bool relearning = false;  // re-learning now (state kLearning with a learnt model)
+  // In-control average run length, in samples, each residual chart's thresholds were
+  // designed for (Thresholds::arl0_per_chart; 0 until armed or when all were given).
+  double design_arl0 = 0.0;
 };
 
 class ChannelPipeline {

@@ -100,8 +100,7 @@ double BudgetShare(const ChannelOptions& options, std::size_t asset_channels) {
   return 1.0 / static_cast<double>(asset_channels);
 }
 
-ThresholdOptions SharedThresholdOptions(const ChannelOptions& options,
-                                        std::size_t asset_channels) {
+ThresholdOptions SharedThresholdOptions(const ChannelOptions& options, std::size_t asset_channels) {
   ThresholdOptions shared = options.thresholds;
   shared.false_alarms_per_day *= BudgetShare(options, asset_channels);
   return shared;

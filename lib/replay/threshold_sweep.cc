@@ -210,9 +210,8 @@ void PreLearn(core::ResidualMonitor& monitor, const ChannelResidualCache& channe
 void PreLearnAndArm(Lane& lane, const ChannelResidualCache& channel,
                     core::ThresholdDesigner& designer) {
   PreLearn(lane.monitor, channel);
-  core::Result<core::Thresholds> thresholds =
-      designer.Design(core::SharedThresholdOptions(lane.options, channel.asset_channels),
-                          channel.armed_period_s);
+  core::Result<core::Thresholds> thresholds = designer.Design(
+      core::SharedThresholdOptions(lane.options, channel.asset_channels), channel.armed_period_s);
   if (!thresholds.ok()) {
     lane.status = thresholds.status();
     return;
@@ -510,9 +509,8 @@ std::vector<core::Result<SettingRaises>> RunCharts(
     if (!valid[s]) continue;
     ChartLane lane(*valid[s]);
     if (shared.armed) {
-      core::Result<core::Thresholds> thresholds =
-          designer.Design(core::SharedThresholdOptions(*valid[s], channel.asset_channels),
-                          channel.armed_period_s);
+      core::Result<core::Thresholds> thresholds = designer.Design(
+          core::SharedThresholdOptions(*valid[s], channel.asset_channels), channel.armed_period_s);
       if (!thresholds.ok()) {
         failed[s] = thresholds.status();
         continue;

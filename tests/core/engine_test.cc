@@ -462,5 +462,59 @@ TEST(EngineTest, AQuietSpellDoesNotPinAnAlarmForEver) {
       << "alarm still up 30 min after the sensor moves again";
 }
 
+// Arms "unit.a".."unit.d" (one asset) and "solo" (no dot: grouped with no other) on 1 Hz
+// white noise; returns each channel's design ARL0, in that order.
+std::vector<double> DesignArlsOfAnAssetAndASoloChannel(bool shares_budget) {
+  EngineOptions options;
+  options.defaults.warmup_samples = 400;
+  options.defaults.predictor.hidden_size = 8;
+  options.defaults.predictor.window = 8;
+  options.defaults.asset_shares_budget = shares_budget;
+  Engine engine(options);
+  std::vector<ChannelId> ids;
+  for (const char* name : {"unit.a", "unit.b", "unit.c", "unit.d", "solo"}) {
+    ids.push_back(*engine.AddChannel(name));
+  }
+  EXPECT_EQ(engine.asset_channels(ids[0]), 4u);
+  EXPECT_EQ(engine.asset_channels(ids[4]), 1u);
+  std::mt19937_64 rng(17);
+  std::normal_distribution<double> noise(0.0, 1.0);
+  std::vector<Alert> alerts;
+  for (int i = 0; i < 600; ++i) {
+    for (const ChannelId id : ids) engine.Process(id, At(i), 20.0 + noise(rng), alerts);
+  }
+  std::vector<double> arls;
+  for (const ChannelId id : ids) {
+    EXPECT_NE(engine.channel_status(id).state, ChannelState::kLearning) << engine.channel_name(id);
+    arls.push_back(engine.channel_status(id).design_arl0);
+  }
+  return arls;
+}
+
+TEST(EngineTest, AnAssetsChannelsShareItsFalseAlarmBudget) {
+  // ThresholdDesigner's rule (threshold_design.h): each of the three residual charts gets
+  // ARL0 = 3 * samples per day / budget. At 1 Hz and the default 0.5 a day that is
+  // 518 400 samples for a channel alone; the four channels of an asset share the budget,
+  // 0.125 a day each, so each of their charts is designed for four times the run length.
+  const std::vector<double> shared = DesignArlsOfAnAssetAndASoloChannel(true);
+  EXPECT_NEAR(shared[4], 3.0 * 86400.0 / 0.5, 1.0);
+  for (int i = 0; i < 4; ++i) EXPECT_NEAR(shared[i], 3.0 * 86400.0 / 0.125, 4.0) << i;
+  // asset_shares_budget: false gives every channel the whole budget.
+  const std::vector<double> own = DesignArlsOfAnAssetAndASoloChannel(false);
+  for (const double arl : own) EXPECT_NEAR(arl, 3.0 * 86400.0 / 0.5, 1.0);
+}
+
+TEST(EngineTest, BudgetShareDividesByTheAssetsChannelsOnlyWhenShared) {
+  ChannelOptions options;
+  EXPECT_DOUBLE_EQ(BudgetShare(options, 0), 1.0);
+  EXPECT_DOUBLE_EQ(BudgetShare(options, 1), 1.0);
+  EXPECT_DOUBLE_EQ(BudgetShare(options, 52), 1.0 / 52.0);
+  options.thresholds.false_alarms_per_day = 2.0;
+  EXPECT_DOUBLE_EQ(SharedThresholdOptions(options, 8).false_alarms_per_day, 0.25);
+  options.asset_shares_budget = false;
+  EXPECT_DOUBLE_EQ(BudgetShare(options, 52), 1.0);
+  EXPECT_DOUBLE_EQ(SharedThresholdOptions(options, 8).false_alarms_per_day, 2.0);
+}
+
 }  // namespace
 }  // namespace nightjar::core
