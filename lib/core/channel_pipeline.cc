@@ -55,6 +55,16 @@ LstmPredictorOptions PredictorOptionsFor(const ChannelOptions& options, std::uin
   return predictor;
 }
 
+// Appended to a raise that made its alarm chattering (AlarmTiming::chatter_raises): the
+// operator must know why this alarm will not clear as soon as the value returns.
+std::string ChatteringNote(const Alarm& alarm) {
+  if (!alarm.chattering()) return {};
+  const AlarmTiming& timing = alarm.timing();
+  const std::string window = FormatDuration(timing.chatter_window_s);
+  return "; chattering (" + std::to_string(timing.chatter_raises) + " raises within " + window +
+         "): it stands until quiet for " + window;
+}
+
 }  // namespace
 
 const char* ChannelStateName(ChannelState state) {
@@ -567,6 +577,7 @@ void ChannelPipeline::EmitEdge(AlarmCondition condition, AlarmEdge edge, const C
       alert.message =
           AnomalyRaiseMessage(name_, unit, context.value, context.expected, context.z,
                               std::max(since_s, run_s), reading->detector == Detector::kSpike);
+      alert.message += ChatteringNote(source);
     } else {
       alert.message = AnomalyClearMessage(name_, unit, context.value, context.expected, lasted_s);
     }
@@ -632,6 +643,7 @@ void ChannelPipeline::EmitEdge(AlarmCondition condition, AlarmEdge edge, const C
       break;
   }
   (void)since_s;
+  if (raise) message += ChatteringNote(source);
   alert.message = std::move(message);
   out.push_back(std::move(alert));
 }

@@ -516,5 +516,37 @@ TEST(EngineTest, BudgetShareDividesByTheAssetsChannelsOnlyWhenShared) {
   EXPECT_DOUBLE_EQ(SharedThresholdOptions(options, 8).false_alarms_per_day, 2.0);
 }
 
+TEST(EngineTest, TheRaiseThatMakesAnAlarmChatteringSaysItsClearIsHeld) {
+  // A transmitter that drops out of range for one sample every 5 minutes: ISA-18.2 calls
+  // an alarm that raises and clears this often chattering (3 raises within the hour by
+  // default). The first two raises read as usual; the third says the alarm stands until
+  // an hour passes without one, which is when it clears.
+  EngineOptions options = SmallModel();
+  Engine engine(options);
+  std::vector<Alert> alerts;
+  const ChannelId id = *engine.AddChannel("cw2.pump_a.flow");
+  for (int i = 0; i < 1200 + 3700; ++i) {
+    const bool dropout = i < 1200 && i % 300 == 100;
+    engine.Process(id, At(i), dropout ? -5.0 : 50.0 + 0.1 * std::sin(i * 0.1), alerts);
+  }
+  std::vector<Alert> raises;
+  std::vector<Alert> clears;
+  for (const Alert& a : alerts) {
+    if (a.kind != AlertKind::kSensor || a.detector != Detector::kRange) continue;
+    (a.phase == AlertPhase::kRaise ? raises : clears).push_back(a);
+  }
+  SCOPED_TRACE(Describe(alerts));
+  ASSERT_EQ(raises.size(), 3u) << "the 4th drop-out falls while the chattering alarm stands";
+  EXPECT_EQ(raises[0].message.find("chattering"), std::string::npos);
+  EXPECT_EQ(raises[1].message.find("chattering"), std::string::npos);
+  EXPECT_NE(raises[2].message.find(
+                "chattering (3 raises within 60.0 min): it stands until quiet for 60.0 min"),
+            std::string::npos)
+      << raises[2].message;
+  ASSERT_EQ(clears.size(), 3u);
+  // The last drop-out is at 1000 s: the held clear comes an hour after it returned.
+  EXPECT_EQ(clears[2].time, At(1001 + 3600));
+}
+
 }  // namespace
 }  // namespace nightjar::core
