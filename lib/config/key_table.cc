@@ -54,6 +54,10 @@ const std::array kKeys = {
             "feed sin/cos of the UTC time of day to the predictor (daily load cycles)"},
     KeySpec{"forecaster", NIGHTJAR_FIELD(forecaster), None(), "",
             "what forecasts the next value: lstm, or last_value (the naive baseline)"},
+    KeySpec{"context.from_asset", NIGHTJAR_FIELD(context.from_asset), None(), "",
+            "the model takes the changes of its asset's other channels as inputs"},
+    KeySpec{"context.max_channels", NIGHTJAR_FIELD(context.max_channels), Closed(0, 64), "channels",
+            "most context channels (the asset's first met); 0 = none"},
 
     KeySpec{"scaler.warmup_samples", NIGHTJAR_FIELD(scaler.warmup_samples), AtLeast(2), "samples",
             "samples learnt by the input scaler before the predictor starts"},

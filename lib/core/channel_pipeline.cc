@@ -25,10 +25,6 @@ constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 // residuals exceed it once in 16 000 samples; common practice for robust filtering).
 constexpr double kSuspectSigmas = 4.0;
 
-int PredictorInputs(const ChannelOptions& options) {
-  return options.time_of_day_features ? 4 : 2;  // increment, level (, sin, cos of time of day)
-}
-
 // Per-step damping of forecast increments while the model runs closed loop.
 constexpr double kClosedLoopDamping = 0.95;
 constexpr int kMaxClosedLoopSteps = 300;
@@ -48,9 +44,10 @@ constexpr double kMaxHoldRunSpread = 0.25;  // sd of the run length over its mea
 // Increments smaller than this fraction of the level scale are noise to the model.
 constexpr double kIncrementScaleFloor = 1e-3;
 
-LstmPredictorOptions PredictorOptionsFor(const ChannelOptions& options, std::uint64_t seed) {
+LstmPredictorOptions PredictorOptionsFor(const ChannelOptions& options, std::uint64_t seed,
+                                         std::size_t context_channels) {
   LstmPredictorOptions predictor = options.predictor;
-  predictor.input_size = PredictorInputs(options);
+  predictor.input_size = PredictorInputCount(options, context_channels);
   predictor.seed = seed;
   return predictor;
 }
@@ -116,15 +113,40 @@ ChannelPipeline::ChannelPipeline(std::string name, const ChannelOptions& options
                                   .configured_period_s = options.sample_period_s}),
       health_(options.sensor),
       scaler_(options.scaler),
-      predictor_(PredictorOptionsFor(options, seed)),
+      predictor_(PredictorOptionsFor(options, seed, 0)),
       monitor_(options.residual),
       level_(options.level, options.residual),
       alarms_{{Alarm(options.anomaly_alarm), Alarm(options.sensor_alarm),
                Alarm(options.sensor_alarm), Alarm(options.sensor_alarm),
                Alarm(options.sensor_alarm)}},
-      features_(static_cast<std::size_t>(PredictorOptionsFor(options, seed).input_size), 0.0f) {
+      features_(static_cast<std::size_t>(PredictorInputCount(options, 0)), 0.0f) {
   matchers_.reserve(options.events.size());
   for (const EventTemplate& event : options.events) matchers_.emplace_back(event);
+}
+
+void ChannelPipeline::FixContext(std::vector<std::string> names) {
+  if (names.size() > static_cast<std::size_t>(kMaxContextChannels)) {
+    names.resize(static_cast<std::size_t>(kMaxContextChannels));
+  }
+  context_names_ = std::move(names);
+  context_read_.assign(context_names_.size(), kNaN);
+  context_fixed_ = true;
+  SizeModelForContext();
+}
+
+void ChannelPipeline::SizeModelForContext() {
+  const int inputs = PredictorInputCount(options_, context_names_.size());
+  if (inputs == predictor_.options().input_size) return;
+  predictor_ = LstmPredictor(
+      PredictorOptionsFor(options_, predictor_.options().seed, context_names_.size()));
+  features_.assign(static_cast<std::size_t>(inputs), 0.0f);
+}
+
+ContextSource ChannelPipeline::context_source() const {
+  // What its own model was fed: while it is suspect or in alarm that is its forecast, so a
+  // fault on this channel does not carry the models that read it off what they learnt.
+  const bool valid = has_last_used_ && scaler_.ready();
+  return {.value = last_used_, .increment_scale = valid ? IncrementScale() : 1.0, .valid = valid};
 }
 
 const Alarm& ChannelPipeline::alarm(AlarmCondition condition) const {
@@ -171,6 +193,7 @@ void ChannelPipeline::Process(TimestampUs time, double value, ThresholdDesigner&
   if (after_gap) {  // the recurrent state and the last increment are meaningless now
     predictor_.ResetSequence();
     has_last_used_ = false;
+    std::fill(context_read_.begin(), context_read_.end(), kNaN);
     for (TemplateMatcher& matcher : matchers_) matcher.Reset();
   }
 
@@ -358,6 +381,25 @@ void ChannelPipeline::FillFeatures(TimestampUs time, double increment, double le
         2.0 * std::numbers::pi * static_cast<double>(of_day) / static_cast<double>(day_us);
     features_[2] = static_cast<float>(std::sin(angle));
     features_[3] = static_cast<float>(std::cos(angle));
+  }
+  // Each context input is how far that channel moved since this one last read it, in its
+  // own increments: the change, not the level, so a slow context channel (an ambient
+  // temperature) that wanders beyond what was learnt cannot bias the forecast, and a
+  // silent one feeds 0 rather than its last increment for ever. One sampled slower than
+  // this channel shows its change once; one sampled faster, the sum of its changes.
+  const std::size_t own = static_cast<std::size_t>(PredictorInputCount(options_, 0));
+  for (std::size_t i = 0; i < context_read_.size() && own + i < features_.size(); ++i) {
+    float input = 0.0f;
+    const bool valid = i < context_.size() && context_[i].valid;
+    if (valid && std::isfinite(context_read_[i])) {
+      const ContextSource& source = context_[i];
+      input =
+          static_cast<float>(std::clamp((source.value - context_read_[i]) / source.increment_scale,
+                                        -InputScaler::kMaxScaled, InputScaler::kMaxScaled));
+    }
+    // A context channel that lost its value (a gap) starts afresh when it has one again.
+    context_read_[i] = valid ? context_[i].value : kNaN;
+    features_[own + i] = input;
   }
 }
 

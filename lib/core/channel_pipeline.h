@@ -10,6 +10,7 @@
 #include <cstddef>
 #include <cstdint>
 #include <optional>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -77,6 +78,13 @@ struct ChannelStatus {
   double design_arl0 = 0.0;
 };
 
+// One context channel as another channel's model reads it (ContextOptions).
+struct ContextSource {
+  double value = 0.0;            // the value its own model was last fed
+  double increment_scale = 1.0;  // the spread of its sample-to-sample changes
+  bool valid = false;            // false until it has a value and a scale, and after a gap
+};
+
 class ChannelPipeline {
  public:
   ChannelPipeline(std::string name, const ChannelOptions& options, std::uint64_t seed);
@@ -105,6 +113,16 @@ class ChannelPipeline {
   // engine keeps it current. The charts are designed for the share of the false-alarm
   // budgets it gives (BudgetShare) when the channel arms.
   void set_asset_channels(std::size_t count) { asset_channels_ = count; }
+
+  // Context inputs (ContextOptions). The engine fixes the set once, when the model is about
+  // to start (context_due()), and before each Process hands over what those channels show
+  // now, in their order (borrowed until that Process returns).
+  bool context_due() const { return !context_fixed_ && scaler_.ready(); }
+  void FixContext(std::vector<std::string> names);
+  const std::vector<std::string>& context_names() const { return context_names_; }
+  void set_context(std::span<const ContextSource> sources) { context_ = sources; }
+  // What this channel shows the models whose context it is.
+  ContextSource context_source() const;
 
   // The recording just fed was known to be normal (`nightjar learn`): arm now if the
   // residual scale has settled, even before warmup_samples; if the channel was armed
@@ -172,6 +190,8 @@ class ChannelPipeline {
                 const ResidualReading* reading, std::vector<Alert>& out);
   void MatchEvents(const Context& context, std::vector<Alert>& out);
   void FillFeatures(TimestampUs time, double increment, double level);
+  // Rebuilds the (unstarted or just restored) model for context_names_.size() context inputs.
+  void SizeModelForContext();
   double IncrementScale() const;
   void NoteRepeat(bool repeat);
   // A sample-and-hold signal in a regular hold: a repeat is no new measurement.
@@ -192,6 +212,11 @@ class ChannelPipeline {
 
   bool has_last_used_ = false;
   std::size_t asset_channels_ = 1;
+  bool context_fixed_ = false;
+  std::vector<std::string> context_names_;
+  // Each context channel's value when this one last read it (NaN: not yet, or since a gap).
+  std::vector<double> context_read_;
+  std::span<const ContextSource> context_;
   int closed_loop_steps_ = 0;
   bool held_out_ = false;   // closed loop ran out: fed measurements until back to normal
   double last_used_ = 0.0;  // last value the model was fed (the forecast while in alarm)

@@ -29,6 +29,7 @@ class SaveArchive {
   void operator()(const bool& value) { writer_.U8(value ? 1 : 0); }
   void operator()(const float& value) { writer_.F32(value); }
   void operator()(const double& value) { writer_.F64(value); }
+  void operator()(const std::string& value) { writer_.String(value); }
   template <typename T>
   requires(std::is_integral_v<T> && !std::is_same_v<T, bool>) void operator()(const T& value) {
     writer_.I64(static_cast<std::int64_t>(value));
@@ -87,6 +88,7 @@ class LoadArchive {
   }
   void operator()(float& value) { (void)reader_.F32(&value); }
   void operator()(double& value) { (void)reader_.F64(&value); }
+  void operator()(std::string& value) { (void)reader_.String(&value, kMaxChannelNameBytes); }
   template <typename T>
   requires(std::is_integral_v<T> && !std::is_same_v<T, bool>) void operator()(T& value) {
     std::int64_t raw = 0;
@@ -192,6 +194,14 @@ class ChannelStateAccess {
     a(p.health_.last_sample_time_);
     Scaler(a, p.scaler_);
     Moments(a, p.increment_moments_);
+    a(p.context_fixed_);
+    a(p.context_names_);
+    a.Check(p.context_names_.size() <= static_cast<std::size_t>(kMaxContextChannels),
+            "more context channels than a model takes");
+    a.Check(p.context_fixed_ || p.context_names_.empty(), "context channels of an unstarted model");
+    a(p.context_read_);
+    a.Check(p.context_read_.size() == p.context_names_.size(), "context readings differ in number");
+    if constexpr (A::kLoading) p.SizeModelForContext();  // the model's shape follows its context
     Predictor(a, p.predictor_);
     Monitor(a, p.monitor_);
     Monitor(a, p.level_.charts_);
@@ -432,6 +442,8 @@ std::uint64_t OptionsFingerprint(const ChannelOptions& o) {
   StateWriter w(bytes);
   w.U32(static_cast<std::uint32_t>(o.forecaster));
   w.U8(o.time_of_day_features ? 1 : 0);
+  w.U8(o.context.from_asset ? 1 : 0);
+  w.I64(o.context.max_channels);
   w.I64(o.warmup_samples);
   w.F64(o.sample_period_s);
   w.I64(o.scaler.warmup_samples);

@@ -32,7 +32,7 @@
 
 namespace nightjar::core {
 
-inline constexpr std::uint32_t kChannelStateVersion = 5;
+inline constexpr std::uint32_t kChannelStateVersion = 6;
 inline constexpr std::uint32_t kMaxChannelNameBytes = 4096;
 
 // Why a checkpoint was not loaded.

@@ -47,6 +47,7 @@ Result<ChannelId> Engine::AddChannel(std::string_view name, const ChannelOptions
                                                         ChannelSeed(options_.seed, name)));
   options_of_.push_back(options);
   asset_of_.push_back(AssetOfChannel(name, options.asset));
+  context_of_.emplace_back();
   JoinAsset(id);
   ids_.emplace(std::string(name), id);
   channels_.back()->set_residual_tap(tap_, id);
@@ -120,6 +121,7 @@ Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options) {
       std::make_unique<ChannelPipeline>(name, options, ChannelSeed(options_.seed, name));
   channels_[channel]->set_residual_tap(tap_, channel);
   options_of_[channel] = options;
+  context_of_[channel].clear();
   episodes_.NoteSilenced(asset_of_[channel], name);  // the new pipeline is in no alarm
   return Status::Ok();
 }
@@ -163,7 +165,7 @@ Status Engine::ResetChannel(ChannelId channel, const ChannelOptions& options, Ti
 }
 
 void Engine::EnsureWorkspace(const ChannelOptions& options) {
-  const int inputs = options.time_of_day_features ? 4 : 2;
+  const int inputs = MaxPredictorInputCount(options);
   const int hidden = options.predictor.hidden_size;
   const int window = options.predictor.window;
   if (workspace_ && inputs <= workspace_inputs_ && hidden <= workspace_hidden_ &&
@@ -208,9 +210,55 @@ void Engine::Process(ChannelId channel, TimestampUs time, double value, std::vec
   ChannelPipeline& pipeline = *channels_[channel];
   const std::int64_t relearns = pipeline.relearn_count();
   pipeline.set_asset_channels(asset_channels(channel));
+  if (pipeline.context_due()) FixContext(channel);
+  pipeline.set_context(GatherContext(channel));
   pipeline.Process(time, value, designer_, *workspace_, out);
   if (pipeline.relearn_count() != relearns) RelearnAssetWith(channel, time, out);
   if (out.size() != before) Group(out, before);
+}
+
+void Engine::FixContext(ChannelId channel) {
+  const ContextOptions& context = options_of_[channel].context;
+  const std::size_t slot = asset_slot_[channel];
+  std::vector<std::string> names;
+  std::vector<ChannelId>& ids = context_of_[channel];
+  ids.clear();
+  if (context.from_asset && slot != kNoAsset) {
+    // Once per channel, so a scan of all channels is fine.
+    for (ChannelId id = 0; id < channels_.size(); ++id) {
+      if (names.size() >= static_cast<std::size_t>(context.max_channels)) break;
+      if (id == channel || asset_slot_[id] != slot) continue;
+      names.push_back(channels_[id]->name());
+      ids.push_back(id);
+    }
+  }
+  channels_[channel]->FixContext(std::move(names));
+}
+
+void Engine::ResolveContext(ChannelId channel) {
+  const std::vector<std::string>& names = channels_[channel]->context_names();
+  std::vector<ChannelId>& ids = context_of_[channel];
+  ids.assign(names.size(), kUnresolved);
+  for (std::size_t i = 0; i < names.size(); ++i) {
+    if (const std::optional<ChannelId> found = FindChannel(names[i])) ids[i] = *found;
+  }
+}
+
+std::span<const ContextSource> Engine::GatherContext(ChannelId channel) {
+  const std::vector<std::string>& names = channels_[channel]->context_names();
+  std::vector<ChannelId>& ids = context_of_[channel];
+  if (names.empty()) return {};
+  if (ids.size() != names.size()) ResolveContext(channel);
+  if (context_values_.size() < names.size()) context_values_.resize(names.size());
+  for (std::size_t i = 0; i < names.size(); ++i) {
+    // A context channel restored from a checkpoint may not exist yet: look again.
+    if (ids[i] == kUnresolved) {
+      if (const std::optional<ChannelId> found = FindChannel(names[i])) ids[i] = *found;
+    }
+    context_values_[i] =
+        ids[i] == kUnresolved ? ContextSource{} : channels_[ids[i]]->context_source();
+  }
+  return {context_values_.data(), names.size()};
 }
 
 void Engine::RelearnAssetWith(ChannelId channel, TimestampUs now, std::vector<Alert>& out) {
@@ -260,6 +308,7 @@ Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> 
     restored->set_residual_tap(tap_, *id);
     channels_[*id] = std::move(restored);
     options_of_[*id] = options;
+    ResolveContext(*id);
     RegroupRestored(*id);
     return Status::Ok();
   }
@@ -268,8 +317,10 @@ Status Engine::LoadChannel(std::string_view name, std::span<const std::uint8_t> 
   channels_.push_back(std::move(restored));
   options_of_.push_back(options);  // channel_options(id) must hold for a loaded channel too
   asset_of_.push_back(AssetOfChannel(name, options.asset));
+  context_of_.emplace_back();
   JoinAsset(id);
   ids_.emplace(std::string(name), id);
+  ResolveContext(id);
   RegroupRestored(id);
   return Status::Ok();
 }

@@ -145,6 +145,12 @@ class Engine {
   // After `id`'s pipeline was replaced by a restored one: its episode membership follows
   // the restored anomaly alarm.
   void RegroupRestored(ChannelId id);
+  // Context inputs (ContextOptions): FixContext picks `channel`'s context channels when its
+  // model starts; ResolveContext maps the names its pipeline holds to ids (kUnresolved for
+  // one not seen yet); GatherContext gives what they show now, valid until the next call.
+  void FixContext(ChannelId channel);
+  void ResolveContext(ChannelId channel);
+  std::span<const ContextSource> GatherContext(ChannelId channel);
   // Files the channel just appended to asset_of_ under its asset's channel count.
   void JoinAsset(ChannelId id);
 
@@ -159,6 +165,10 @@ class Engine {
   std::vector<std::size_t> asset_sizes_;
   std::vector<std::size_t> asset_slot_;  // by ChannelId
   std::unordered_map<std::string, std::size_t, NameHash, std::equal_to<>> asset_slots_;
+  // Each channel's context channels by id, in its pipeline's context_names() order.
+  static constexpr ChannelId kUnresolved = static_cast<ChannelId>(-1);
+  std::vector<std::vector<ChannelId>> context_of_;  // by ChannelId
+  std::vector<ContextSource> context_values_;       // GatherContext's scratch
   AlarmEpisodes episodes_;
   std::unordered_map<std::string, ChannelId, NameHash, std::equal_to<>> ids_;
   std::unique_ptr<LstmWorkspace<float>> workspace_;

@@ -1,5 +1,6 @@
 #include "core/engine_options.h"
 
+#include <algorithm>
 #include <cmath>
 #include <string>
 
@@ -24,6 +25,16 @@ Status ValidateTiming(const AlarmTiming& timing, const std::string& prefix) {
 
 const char* ForecasterName(Forecaster forecaster) {
   return forecaster == Forecaster::kLstm ? "lstm" : "last_value";
+}
+
+int PredictorInputCount(const ChannelOptions& options, std::size_t context_channels) {
+  const int own = options.time_of_day_features ? 4 : 2;
+  return own + static_cast<int>(std::min(context_channels, std::size_t{kMaxContextChannels}));
+}
+
+int MaxPredictorInputCount(const ChannelOptions& options) {
+  const int slots = options.context.from_asset ? std::max(options.context.max_channels, 0) : 0;
+  return PredictorInputCount(options, static_cast<std::size_t>(slots));
 }
 
 Status ValidateChannelOptions(const ChannelOptions& options) {
@@ -61,8 +72,12 @@ Status ValidateChannelOptions(const ChannelOptions& options) {
   }
   if (!(options.scaler.min_scale >= 0.0)) return Invalid("scaler.min_scale", "must be >= 0");
 
+  if (options.context.max_channels < 0 || options.context.max_channels > kMaxContextChannels) {
+    return Invalid("context.max_channels",
+                   "must be in [0, " + std::to_string(kMaxContextChannels) + "]");
+  }
   LstmPredictorOptions predictor = options.predictor;
-  predictor.input_size = options.time_of_day_features ? 4 : 2;
+  predictor.input_size = MaxPredictorInputCount(options);
   if (Status p = LstmPredictor::Validate(predictor); !p.ok()) {
     std::string message = p.message();
     if (message.rfind("lstm.", 0) == 0) message.erase(0, 5);

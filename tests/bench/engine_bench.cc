@@ -12,6 +12,8 @@
 //   work alone (same analytic count as lstm_bench.cc, with the engine's 4 inputs).
 // BM_EngineManyChannels/N: N channels (H = 32, inference), samples round-robin, so a
 //   channel's state comes from L2, L3 or DRAM rather than L1.
+// BM_EngineAssetContext/N/T: the cost of context inputs (ContextOptions): N channels of
+//   one asset with and without them, training (T = 1) or not, as a ratio.
 // BM_EngineWorkers/{train,infer}/H/C: one Engine per thread, C channels each, as the
 //   daemon's workers run; one worker, then two, alternating in the same run. Reports
 //   total samples/s of each and their ratio (two cores should give close to 2), by wall
@@ -96,12 +98,16 @@ ChannelOptions BenchOptions(int hidden, bool train) {
 // fleets never share a line.
 class alignas(64) Fleet {
  public:
-  Fleet(std::size_t channels, const ChannelOptions& options)
+  // one_asset: every channel is a tag of one asset (cw2.skid.tag_J), so with the default
+  // ContextOptions each model takes the others as inputs; otherwise each is its own pump.
+  Fleet(std::size_t channels, const ChannelOptions& options, bool one_asset = false)
       : engine_(std::make_unique<Engine>(EngineOptions{.defaults = options, .seed = 7})),
         signal_(FlowSignal()) {
     ids_.reserve(channels);
     for (std::size_t j = 0; j < channels; ++j) {
-      Result<ChannelId> id = engine_->AddChannel("cw2.pump_" + std::to_string(j) + ".flow");
+      const std::string name = one_asset ? "cw2.skid.tag_" + std::to_string(j)
+                                         : "cw2.pump_" + std::to_string(j) + ".flow";
+      Result<ChannelId> id = engine_->AddChannel(name);
       if (id.ok()) ids_.push_back(*id);
     }
     spacing_ = kMicrosPerSecond / static_cast<TimestampUs>(std::max<std::size_t>(channels, 1));
@@ -169,8 +175,9 @@ class alignas(64) Fleet {
 };
 
 // A fleet of `channels` channels, armed; null if a channel failed to arm.
-std::unique_ptr<Fleet> MakeArmedFleet(std::size_t channels, const ChannelOptions& options) {
-  auto fleet = std::make_unique<Fleet>(channels, options);
+std::unique_ptr<Fleet> MakeArmedFleet(std::size_t channels, const ChannelOptions& options,
+                                      bool one_asset = false) {
+  auto fleet = std::make_unique<Fleet>(channels, options, one_asset);
   if (fleet->size() != channels || !fleet->Arm(options.warmup_samples)) return nullptr;
   return fleet;
 }
@@ -250,6 +257,44 @@ void BM_EngineManyChannels(benchmark::State& state) {  // NOLINT(readability-ide
   state.counters["raises/channel/day"] = fleet->RaisesPerChannelDay();
 }
 BENCHMARK(BM_EngineManyChannels)->Arg(100)->Arg(10000);
+
+// The cost of context inputs: N channels of one asset, each model taking the other N - 1
+// as inputs (ContextOptions defaults), against the same N channels with
+// context.from_asset off, stepped alternately in the same run. context_cost is the ratio
+// of time per sample, with context over without (1 = free).
+void BM_EngineAssetContext(benchmark::State& state) {  // NOLINT(readability-identifier-naming)
+  const auto channels = static_cast<std::size_t>(state.range(0));
+  const bool train = state.range(1) != 0;
+  ChannelOptions with = BenchOptions(32, train);
+  ChannelOptions without = with;
+  without.context.from_asset = false;
+  const std::unique_ptr<Fleet> a = MakeArmedFleet(channels, with, true);
+  const std::unique_ptr<Fleet> b = MakeArmedFleet(channels, without, true);
+  if (!a || !b) {
+    state.SkipWithError("channels did not arm");
+    return;
+  }
+  using Clock = std::chrono::steady_clock;
+  Clock::duration with_time{};
+  Clock::duration without_time{};
+  for (auto _ : state) {
+    const Clock::time_point begin = Clock::now();
+    for (std::size_t j = 0; j < channels; ++j) a->Step();
+    const Clock::time_point middle = Clock::now();
+    for (std::size_t j = 0; j < channels; ++j) b->Step();
+    with_time += middle - begin;
+    without_time += Clock::now() - middle;
+  }
+  state.SetItemsProcessed(state.iterations() * static_cast<std::int64_t>(2 * channels));
+  state.counters["context_cost"] = std::chrono::duration<double>(with_time).count() /
+                                   std::chrono::duration<double>(without_time).count();
+  state.counters["bytes/channel"] =
+      static_cast<double>(a->MemoryBytes()) / static_cast<double>(channels);
+  state.counters["bytes/channel_without"] =
+      static_cast<double>(b->MemoryBytes()) / static_cast<double>(channels);
+}
+// Args: channels in the asset, training (1) or inference (0).
+BENCHMARK(BM_EngineAssetContext)->Args({8, 1})->Args({8, 0})->Args({52, 1})->Args({52, 0});
 
 // Samples per second of a set of workers, summed over workers: by wall time, and by
 // each thread's own CPU time. The second is what the workers would give with a core each

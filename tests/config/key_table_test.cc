@@ -43,19 +43,20 @@ std::size_t RowsIn(std::string_view section) {
 TEST(KeyTableTest, HasOneRowPerChannelOptionsField) {
   // If one of these counts changes, a field was added or removed: add or remove its row in
   // lib/config/key_table.cc (and its line in config/nightjar.yaml), then update the count.
-  EXPECT_EQ(CountFields<core::ChannelOptions>(), 21u);
-  EXPECT_EQ(RowsIn(""), 21u - 9u);  // 9 members are sections (two alarm timings)
+  EXPECT_EQ(CountFields<core::ChannelOptions>(), 22u);
+  EXPECT_EQ(RowsIn(""), 22u - 10u);  // 10 members are sections (two alarm timings)
   EXPECT_EQ(CountFields<core::InputScalerOptions>(), RowsIn("scaler"));
   // input_size and seed are set by the engine, not the config.
   EXPECT_EQ(CountFields<core::LstmPredictorOptions>(), RowsIn("predictor") + 2);
   EXPECT_EQ(CountFields<core::ResidualMonitorOptions>(), RowsIn("residual"));
   EXPECT_EQ(CountFields<core::ThresholdOptions>(), RowsIn("thresholds"));
   EXPECT_EQ(CountFields<core::ResumeOptions>(), RowsIn("resume"));
+  EXPECT_EQ(CountFields<core::ContextOptions>(), RowsIn("context"));
   EXPECT_EQ(CountFields<core::LevelOptions>(), RowsIn("level"));
   EXPECT_EQ(CountFields<core::SensorHealthOptions>(), RowsIn("sensor"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("anomaly_alarm"));
   EXPECT_EQ(CountFields<core::AlarmTiming>(), RowsIn("sensor_alarm"));
-  EXPECT_EQ(ChannelKeys().size(), 60u);
+  EXPECT_EQ(ChannelKeys().size(), 62u);
   // One `events:` entry.
   EXPECT_EQ(CountFields<core::EventTemplate>(), EventTemplateKeys().size());
 }
@@ -83,6 +84,7 @@ TEST(KeyTableTest, EveryRowReachesItsOwnFieldInsideItsSection) {
   };
   const std::map<std::string_view, Range> sections = {
       {"", {&o, sizeof o}},
+      {"context", {&o.context, sizeof o.context}},
       {"scaler", {&o.scaler, sizeof o.scaler}},
       {"predictor", {&o.predictor, sizeof o.predictor}},
       {"residual", {&o.residual, sizeof o.residual}},
