@@ -84,8 +84,9 @@ struct ContextOptions {
   // alarm shows its own forecast, so one fault does not carry its siblings' models off what
   // they learnt. The set (in the order the engine met the channels) is fixed when the model
   // starts, once the input scaler is ready, by when the asset's channels have all reported,
-  // and is kept in the channel's state; a channel that appears later is not added until the
-  // channel is reset. Default true.
+  // and is kept in the channel's state; a channel that appears later, or an asset regrouped
+  // by a new config, changes it only when the channel starts from scratch (a reset, or a
+  // checkpoint it refuses). Default true.
   bool from_asset = true;
   // At most this many context channels (the first met). Cost grows with it: per sample, 7
   // context inputs take 1.1x (training) to 1.2x (inference) the time without, 51 take 2.0x

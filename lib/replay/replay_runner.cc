@@ -245,6 +245,7 @@ ReplayOutcome RunReplay(const std::string& path, const ReplayOptions& options,
     channel.rejected = status.rejected;
     channel.out_of_order = status.out_of_order;
     channel.relearns = status.relearns;
+    channel.context = engine.channel(ids[i]).context_names();
     channel.sample_period_s = status.sample_period_s;
     channel.final_state = status.state;
     summary.rejected_samples += status.rejected;

@@ -438,6 +438,10 @@ std::string ReportToJson(const ReplayReport& report) {
     json.Field("out_of_order", channel.out_of_order);
     json.Field("sample_period_s", channel.sample_period_s);
     json.Field("relearns", channel.relearns);
+    json.Key("context");
+    json.BeginArray();
+    for (const std::string& name : channel.context) json.String(name);
+    json.EndArray();
     WriteAlertCounts(json, channel.alerts);
     json.EndObject();
   }

@@ -70,6 +70,9 @@ struct ChannelSummary {
   double sample_period_s = 0.0;   // the engine's estimate at the end; 0 if unknown
   // Times it resumed at an operating point it never learnt and re-learnt (ResumeOptions).
   std::int64_t relearns = 0;
+  // The channels its model takes as context inputs (core::ContextOptions), in input order;
+  // empty for none or while its model has not started.
+  std::vector<std::string> context{};
   core::ChannelState final_state = core::ChannelState::kLearning;
   AlertCounts alerts{};
 };

@@ -227,6 +227,9 @@ TEST(ReplayRunnerTest, RaisesTheSensorAlertAndTheStepAnomaly) {
   EXPECT_EQ(s.channels[kTemp].samples, kRows - 1);
   EXPECT_EQ(s.channels[kTemp].final_state, core::ChannelState::kArmed);
   EXPECT_DOUBLE_EQ(s.channels[kFlow].sample_period_s, 1.0);
+  // skid.flow and skid.temp are one asset: each model takes the other as context.
+  EXPECT_EQ(s.channels[kFlow].context, std::vector<std::string>{"skid.temp"});
+  EXPECT_EQ(s.channels[kTemp].context, std::vector<std::string>{"skid.flow"});
   EXPECT_EQ(s.first_time, At(0));
   EXPECT_EQ(s.last_time, At(kRows - 1));
   EXPECT_DOUBLE_EQ(s.span_s(), kRows - 1.0);
@@ -418,6 +421,7 @@ TEST(ReplayRunnerTest, DirectoryOutputMatchesTheAlertsAndCounts) {
   EXPECT_EQ(summary.at("alerts").at("raise"), report.summary.alerts.raises());
   EXPECT_EQ(summary.at("channels").size(), 2u);
   EXPECT_EQ(summary.at("channels")[0].at("alerts").at("sensor").at("raise"), 1);
+  EXPECT_EQ(summary.at("channels")[0].at("context"), nlohmann::json::array({"skid.temp"}));
   const nlohmann::json& scores = summary.at("scores");
   EXPECT_EQ(scores.at("windows"), 2);
   const nlohmann::json& overall = scores.at("overall");
