@@ -15,6 +15,7 @@
 
 #include "core/crc32.h"
 #include "core/engine.h"
+#include "support/same_alerts.h"
 
 namespace nightjar::core {
 namespace {
@@ -57,22 +58,8 @@ std::vector<double> Signal(int n) {
   return values;
 }
 
-bool SameBits(double a, double b) { return std::memcmp(&a, &b, sizeof a) == 0; }
-
-void ExpectSameAlerts(const std::vector<Alert>& a, const std::vector<Alert>& b) {
-  ASSERT_EQ(a.size(), b.size());
-  for (std::size_t i = 0; i < a.size(); ++i) {
-    EXPECT_EQ(a[i].time, b[i].time) << i;
-    EXPECT_EQ(a[i].kind, b[i].kind) << i;
-    EXPECT_EQ(a[i].detector, b[i].detector) << i;
-    EXPECT_EQ(a[i].phase, b[i].phase) << i;
-    EXPECT_TRUE(SameBits(a[i].value, b[i].value)) << i;
-    EXPECT_TRUE(SameBits(a[i].expected, b[i].expected)) << i;
-    EXPECT_TRUE(SameBits(a[i].z, b[i].z)) << i;
-    EXPECT_TRUE(SameBits(a[i].statistic, b[i].statistic)) << i;
-    EXPECT_EQ(a[i].message, b[i].message) << i;
-  }
-}
+using test_support::ExpectSameAlerts;
+using test_support::SameBits;
 
 // A checkpoint of channel kName after `samples` samples of Signal().
 std::vector<std::uint8_t> Checkpoint(int samples, const EngineOptions& options = SmallModel()) {

@@ -6,12 +6,12 @@
 #include <gtest/gtest.h>
 
 #include <cmath>
-#include <cstring>
 #include <random>
 #include <string>
 #include <vector>
 
 #include "core/engine.h"
+#include "support/same_alerts.h"
 
 namespace nightjar::core {
 namespace {
@@ -166,17 +166,7 @@ TEST(EngineContextTest, MaxChannelsKeepsTheFirstMet) {
   EXPECT_EQ(engine.channel(ids[0]).context_names(), (std::vector<std::string>{"skid.b", "skid.c"}));
 }
 
-bool SameBits(double a, double b) { return std::memcmp(&a, &b, sizeof a) == 0; }
-
-void ExpectSameAlerts(const std::vector<Alert>& a, const std::vector<Alert>& b) {
-  ASSERT_EQ(a.size(), b.size());
-  for (std::size_t i = 0; i < a.size(); ++i) {
-    EXPECT_EQ(a[i].time, b[i].time) << i;
-    EXPECT_EQ(a[i].phase, b[i].phase) << i;
-    EXPECT_TRUE(SameBits(a[i].expected, b[i].expected)) << i;
-    EXPECT_EQ(a[i].message, b[i].message) << i;
-  }
-}
+using test_support::ExpectSameAlerts;
 
 // Restores both channels from checkpoints taken mid-run, the flow first (its context
 // channel is then unknown to the engine until the current is loaded), and checks the

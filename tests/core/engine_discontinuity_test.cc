@@ -14,6 +14,7 @@
 #include <vector>
 
 #include "core/engine.h"
+#include "support/same_alerts.h"
 
 namespace nightjar::core {
 namespace {
@@ -46,7 +47,7 @@ double Flow(int i) {
   return 50.0 + 5.0 * std::sin(2.0 * std::numbers::pi * i / 300.0) + noise(rng);
 }
 
-bool SameBits(double a, double b) { return std::memcmp(&a, &b, sizeof a) == 0; }
+using test_support::SameBits;
 
 int CountGap(const std::vector<Alert>& alerts, AlertPhase phase) {
   int n = 0;
