@@ -58,8 +58,8 @@ std::vector<double> Signal(int n) {
   return values;
 }
 
-using test_support::ExpectSameAlerts;
-using test_support::SameBits;
+using testing::ExpectSameAlerts;
+using testing::SameBits;
 
 // A checkpoint of channel kName after `samples` samples of Signal().
 std::vector<std::uint8_t> Checkpoint(int samples, const EngineOptions& options = SmallModel()) {

@@ -1,16 +1,19 @@
 // Context inputs (ContextOptions, core/engine_options.h): a channel's model takes the other
 // channels of its asset as inputs. A flow that follows its pump's current a second later
-// is forecast far better with them than from its own history; the set is fixed when the model
+// is forecast far better with them than from its own history; the per-sample step with
+// context allocates nothing; the set is fixed when the model
 // starts; a channel grouped with no other, or max_channels 0, takes none; a checkpoint carries the
 // set and what was last read, so restored channels continue bit for bit in either load order.
 #include <gtest/gtest.h>
 
 #include <cmath>
+#include <numbers>
 #include <random>
 #include <string>
 #include <vector>
 
 #include "core/engine.h"
+#include "support/allocation_counter.h"
 #include "support/same_alerts.h"
 
 namespace nightjar::core {
@@ -124,6 +127,45 @@ TEST(EngineContextTest, AFlowDrivenByItsPumpIsForecastFromThePumpsCurrent) {
   EXPECT_LT(mse_with, 0.25 * mse_without) << "with " << mse_with << ", without " << mse_without;
 }
 
+TEST(EngineContextTest, PerSampleStepWithContextDoesNotAllocate) {
+  // Two in-control channels of one asset (a 5-minute oscillation and noise each), so the
+  // measured stretch raises nothing: an alert may allocate.
+  Engine engine(SmallModel());
+  const ChannelId a = *engine.AddChannel("cw2.pump_a.flow");
+  const ChannelId b = *engine.AddChannel("cw2.pump_a.discharge_pressure");
+  std::mt19937_64 rng(5);
+  std::normal_distribution<double> noise(0.0, 0.3);
+  auto value = [&](int i, double phase) {
+    return 50.0 + 5.0 * std::sin(2.0 * std::numbers::pi * i / 300.0 + phase) + noise(rng);
+  };
+  std::vector<Alert> alerts;
+  alerts.reserve(64);
+  for (int i = 0; i < 4000; ++i) {
+    engine.Process(a, At(i), value(i, 0.0), alerts);
+    engine.Process(b, At(i), value(i, 1.0), alerts);
+  }
+  ASSERT_EQ(engine.channel(a).context_names().size(), 1u);
+  ASSERT_EQ(engine.channel_status(a).state, ChannelState::kArmed);
+  std::vector<double> values;
+  for (int i = 4000; i < 6000; ++i) {
+    values.push_back(value(i, 0.0));
+    values.push_back(value(i, 1.0));
+  }
+  const std::size_t alerts_before = alerts.size();
+  {
+    testing::AllocationCounter counter;
+    Eigen::internal::set_is_malloc_allowed(false);
+    for (int i = 4000; i < 6000; ++i) {
+      const auto k = static_cast<std::size_t>(2 * (i - 4000));
+      engine.Process(a, At(i), values[k], alerts);
+      engine.Process(b, At(i), values[k + 1], alerts);
+    }
+    Eigen::internal::set_is_malloc_allowed(true);
+    EXPECT_EQ(counter.count(), 0u);
+  }
+  EXPECT_EQ(alerts.size(), alerts_before) << "an alert may allocate; this run must have none";
+}
+
 TEST(EngineContextTest, AChannelAloneOrWithNoContextSlotsTakesNone) {
   EngineOptions options = SmallModel();
   options.defaults.warmup_samples = 400;
@@ -166,7 +208,7 @@ TEST(EngineContextTest, MaxChannelsKeepsTheFirstMet) {
   EXPECT_EQ(engine.channel(ids[0]).context_names(), (std::vector<std::string>{"skid.b", "skid.c"}));
 }
 
-using test_support::ExpectSameAlerts;
+using testing::ExpectSameAlerts;
 
 // Restores both channels from checkpoints taken mid-run, the flow first (its context
 // channel is then unknown to the engine until the current is loaded), and checks the

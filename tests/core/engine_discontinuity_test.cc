@@ -47,7 +47,7 @@ double Flow(int i) {
   return 50.0 + 5.0 * std::sin(2.0 * std::numbers::pi * i / 300.0) + noise(rng);
 }
 
-using test_support::SameBits;
+using testing::SameBits;
 
 int CountGap(const std::vector<Alert>& alerts, AlertPhase phase) {
   int n = 0;

@@ -11,7 +11,7 @@
 
 #include "core/alert.h"
 
-namespace nightjar::test_support {
+namespace nightjar::testing {
 
 inline bool SameBits(double a, double b) { return std::memcmp(&a, &b, sizeof a) == 0; }
 
@@ -31,4 +31,4 @@ inline void ExpectSameAlerts(const std::vector<core::Alert>& a, const std::vecto
   }
 }
 
-}  // namespace nightjar::test_support
+}  // namespace nightjar::testing
